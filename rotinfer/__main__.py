@@ -1,0 +1,5 @@
+"""Allow ``python -m rotinfer``."""
+
+from .cli import run
+
+run()
