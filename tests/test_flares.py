@@ -26,7 +26,7 @@ def test_template_is_zero_before_rise_and_decays_monotonically():
     t = np.linspace(-3, 10, 200001)
     f = flare_profile(t, 0.0, 1.0, 2.0)
     assert np.all(f[t < -1.0] == 0.0)
-    assert f.max() == pytest.approx(2.0, rel=1e-6)
+    assert f.max() == pytest.approx(2.0, rel=1e-3)  # the grid misses t_peak slightly
     # The decay phase falls monotonically and both decay terms sum to ~1 at the peak
     # (0.689008 + 0.302963 = 0.991971, Davenport et al. 2014 eq. 4).
     decay = f[t > 0]
