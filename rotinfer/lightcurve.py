@@ -38,6 +38,10 @@ class LightCurveMeta:
         False when the input had no uncertainties (the model then fits a white-noise term).
     notes : tuple of str
         Human-readable notes from reading (e.g. "3 quality-flagged points dropped").
+    dropped : MaskRecord
+        Points the reader left out (quality-flagged cadences), with reasons and times on
+        this light curve's reference; :func:`rotinfer.prepare.prepare` carries them into
+        its own record so every removed point is accounted for.
     """
 
     identifier: str = "star"
@@ -48,6 +52,7 @@ class LightCurveMeta:
     flux_unit: str = "unknown"
     has_flux_err: bool = False
     notes: tuple[str, ...] = ()
+    dropped: MaskRecord = field(default_factory=lambda: MaskRecord())
 
 
 @dataclass(frozen=True)
