@@ -1,0 +1,548 @@
+"""The quasi-periodic Gaussian-process model of a rotating, spotted star.
+
+The light curve (relative flux, normalised to median 1 per segment by
+:func:`rotinfer.prepare.prepare`) is modelled as
+
+    flux = mean + rotation(t) + background(t) + white noise,
+
+* ``rotation`` — celerite2's :class:`~celerite2.terms.RotationTerm`: two
+  stochastically driven damped harmonic oscillators (SHOs), one at the period
+  ``P`` and one at ``P/2`` (Foreman-Mackey et al. 2017). ``P`` is the period of
+  the autocorrelation, i.e. the rotation period.
+* ``background`` (optional, on by default) — one aperiodic SHO with
+  ``Q = 1/sqrt(2)`` (Harvey-like granulation profile, Foreman-Mackey et al. 2017
+  section 5) that absorbs granulation and slow drifts the rotation term should
+  not have to explain.
+* white noise — the per-point variance is ``flux_err**2 + jitter**2``. The
+  jitter term is always fitted: it matters most when the input had no
+  uncertainties and ``prepare`` had to estimate them from the scatter.
+* ``mean`` — one mean shared by all segments. Preparation has already divided
+  each segment by its median, so the segments share a level of 1 by
+  construction; a free mean per segment would add parameters that trade off
+  against the long-timescale part of the GP (offsets and slow variability are
+  not separately identifiable within one segment) and slow the sampler, while
+  gaining nothing the normalisation has not already done.
+
+Parameters are sampled in an unconstrained space (logs and logits); every
+prior is proper and normalised in that space, so the log posterior can be
+compared between models (periodic against aperiodic, mode against mode).
+
+==========================  =====================================================
+sampled parameter           meaning
+==========================  =====================================================
+``log_period``              ln P, P in days; prior uniform in ln P (log-uniform
+                            in P) between the period limits
+``log_amplitude``           ln sigma_rot, standard deviation of the rotation
+                            signal in relative flux (reported in ppt)
+``log_coherence``           ln(tau_coh / P): the damping time of the mode at P in
+                            rotations, tau_coh = P sqrt(4 Q1^2 - 1) / (2 pi)
+                            (~ Q1 P / pi for Q1 >> 1)
+``logit_secondary_fraction`` f / f_max: fraction of the rotation variance in the
+                            P/2 mode is f / (1 + f)
+``logit_secondary_quality`` r: Q0 = r (Q1 - 1/2), dQ = (1 - r)(Q1 - 1/2), so the
+                            P/2 mode is never more coherent than the mode at P
+``log_background_amplitude`` ln sigma_bg (relative flux)
+``log_background_timescale`` ln tau_bg, damping time of the background in days
+``log_jitter``              ln s, extra white noise (relative flux)
+``mean``                    shared mean level (relative flux)
+==========================  =====================================================
+
+Why these priors (the harmonic traps). A light curve periodic at P is also
+periodic at 2P, so a rotation term at 2P whose P/2 mode (which sits at P) is
+strong fits it almost as well as the term at P; samplers then drift to 2P.
+Two constraints close that door without forbidding anything physical: the mode
+at P carries at least as much variance as the mode at P/2 (``f <= f_max = 1``
+by default), and it is at least as coherent (``dQ >= 0``). With them a kernel
+at 2P must put half of its variance into a coherent oscillation at 2P, which
+data without power at 2P rejects. The opposite trap — two spots on opposite
+hemispheres giving most power at P/2 — is not forbidden by any prior: it shows
+up as competing modes at P and P/2, which :mod:`rotinfer.sample` compares
+explicitly and reports with their probabilities.
+
+References
+----------
+Foreman-Mackey, D., Agol, E., Ambikasaran, S. & Angus, R. 2017, AJ 154, 220
+(celerite: SHO kernels, O(N J^2) likelihood, the rotation example).
+celerite2 documentation, ``RotationTerm`` (parameter mapping; see
+REFERENCES.md "celerite2 rotation term").
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, replace
+
+import celerite2
+import numpy as np
+from celerite2 import terms
+from scipy import special
+
+from .errors import ConfigError, InputError
+from .lightcurve import PreparedLightCurve
+
+__all__ = [
+    "ModelConfig",
+    "RotationModel",
+    "coherence_from_quality",
+    "quality_from_coherence",
+]
+
+#: Quality factor of the aperiodic background oscillator (critically damped
+#: "granulation" profile; Foreman-Mackey et al. 2017, section 5).
+BACKGROUND_Q = 1.0 / math.sqrt(2.0)
+_LN_2PI = math.log(2.0 * math.pi)
+#: Two-sided 95 % point of the standard normal (Phi^-1(0.975)).
+_Z95 = 1.959963984540054
+
+
+@dataclass(frozen=True)
+class ModelConfig:
+    """Options of the rotation model (``[model]`` table of the configuration).
+
+    Ranges given as ``[lo, hi]`` define a log-normal prior whose central 95 %
+    lies between ``lo`` and ``hi``: ln x ~ Normal((ln lo + ln hi)/2,
+    (ln hi - ln lo)/3.92). Log-normal rather than log-uniform so that the prior
+    is smooth and proper, which the Laplace evidence needs when the data say
+    nothing about a parameter (its Hessian then keeps the prior's curvature).
+
+    Attributes
+    ----------
+    period_range : list of two floats, optional
+        Period prior limits in days. Default: the prepared light curve's
+        ``min_period`` and ``max_period``. The prior is log-uniform in between.
+    amplitude_ppt : [lo, hi]
+        95 % prior range of the rotation signal's standard deviation, ppt.
+    coherence_rotations : [lo, hi]
+        95 % prior range of the coherence time of the mode at P, in rotations.
+    max_secondary_fraction : float
+        f_max: the P/2 mode carries at most f_max / (1 + f_max) of the rotation
+        variance (1 means at most half).
+    secondary_fraction_beta, secondary_quality_beta : [a, b]
+        Beta(a, b) priors on f / f_max and on r (``Beta(1, 1)`` is uniform).
+    background : bool
+        Include the aperiodic background oscillator.
+    background_amplitude_ppt : [lo, hi]
+        95 % prior range of the background standard deviation, ppt.
+    background_timescale_days : [lo, hi]
+        95 % prior range of the background damping time, days.
+    jitter_ppt : [lo, hi]
+        95 % prior range of the extra white noise, ppt.
+    mean : [centre, sd]
+        Normal prior on the shared mean (relative flux).
+    """
+
+    period_range: tuple[float, ...] | None = None
+    amplitude_ppt: tuple[float, ...] = (0.01, 300.0)
+    coherence_rotations: tuple[float, ...] = (0.5, 200.0)
+    max_secondary_fraction: float = 1.0
+    secondary_fraction_beta: tuple[float, ...] = (1.0, 1.0)
+    secondary_quality_beta: tuple[float, ...] = (1.0, 1.0)
+    background: bool = True
+    background_amplitude_ppt: tuple[float, ...] = (0.01, 300.0)
+    background_timescale_days: tuple[float, ...] = (0.01, 30.0)
+    jitter_ppt: tuple[float, ...] = (0.001, 100.0)
+    mean: tuple[float, ...] = (1.0, 0.05)
+
+    def __post_init__(self):
+        def pair(name, positive=True, increasing=True):
+            value = getattr(self, name)
+            if value is None:
+                return
+            if len(value) != 2 or not all(np.isfinite(value)):
+                raise ConfigError(f"[model] {name}: expected two finite numbers, got {value!r}")
+            if positive and min(value) <= 0:
+                raise ConfigError(f"[model] {name}: values must be positive, got {value!r}")
+            if increasing and not value[0] < value[1]:
+                raise ConfigError(f"[model] {name}: need lo < hi, got {value!r}")
+
+        pair("period_range")
+        for name in (
+            "amplitude_ppt", "coherence_rotations", "background_amplitude_ppt",
+            "background_timescale_days", "jitter_ppt",
+        ):
+            pair(name)
+        pair("secondary_fraction_beta", increasing=False)
+        pair("secondary_quality_beta", increasing=False)
+        pair("mean", positive=False, increasing=False)
+        if self.mean[1] <= 0:
+            raise ConfigError(f"[model] mean: the prior sd must be positive, got {self.mean!r}")
+        if not (np.isfinite(self.max_secondary_fraction) and self.max_secondary_fraction > 0):
+            raise ConfigError(
+                "[model] max_secondary_fraction: must be positive, "
+                f"got {self.max_secondary_fraction}"
+            )
+
+
+def quality_from_coherence(rotations):
+    """Quality factor Q1 of the mode at P whose damping time is ``rotations`` periods.
+
+    For an SHO the damping time is tau = 2 Q / omega0 and, for celerite2's
+    rotation term, omega1 = 4 pi Q1 / (P sqrt(4 Q1^2 - 1)); hence
+    tau / P = sqrt(4 Q1^2 - 1) / (2 pi) and Q1 = sqrt(1 + (2 pi tau/P)^2) / 2.
+    """
+    return 0.5 * np.sqrt(1.0 + (2.0 * np.pi * np.asarray(rotations)) ** 2)
+
+
+def coherence_from_quality(q1):
+    """Inverse of :func:`quality_from_coherence`: damping time in rotations for Q1 >= 1/2."""
+    return np.sqrt(np.maximum(4.0 * np.asarray(q1) ** 2 - 1.0, 0.0)) / (2.0 * np.pi)
+
+
+def _lognormal_from_range(lo, hi):
+    """(mu, sd) of ln x for a log-normal prior whose central 95 % is [lo, hi]."""
+    a, b = math.log(lo), math.log(hi)
+    return 0.5 * (a + b), (b - a) / (2.0 * _Z95)
+
+
+@dataclass(frozen=True)
+class _Prior:
+    """A proper prior on one unconstrained coordinate."""
+
+    kind: str  # "uniform" | "normal" | "logit-beta"
+    a: float
+    b: float
+
+    def logpdf(self, x):
+        if self.kind == "normal":
+            z = (x - self.a) / self.b
+            return -0.5 * z * z - math.log(self.b) - 0.5 * _LN_2PI
+        if self.kind == "uniform":
+            if self.a <= x <= self.b:
+                return -math.log(self.b - self.a)
+            return -math.inf
+        # logit-beta: u = logistic(x) ~ Beta(a, b); density in x includes du/dx = u (1 - u)
+        # log u = -log(1 + e^-x), log(1 - u) = -log(1 + e^x)
+        log_u = -np.logaddexp(0.0, -x)
+        log_1mu = -np.logaddexp(0.0, x)
+        return float(self.a * log_u + self.b * log_1mu - special.betaln(self.a, self.b))
+
+    def sample(self, rng, size):
+        if self.kind == "normal":
+            return rng.normal(self.a, self.b, size)
+        if self.kind == "uniform":
+            return rng.uniform(self.a, self.b, size)
+        u = rng.beta(self.a, self.b, size)
+        return np.log(u) - np.log1p(-u)
+
+
+@dataclass(frozen=True, eq=False)
+class RotationModel:
+    """Posterior of the rotation (or aperiodic) GP model for one prepared light curve.
+
+    Calling the model, ``model(theta)``, returns the log posterior (log prior +
+    log likelihood, both normalised) of the unconstrained parameter vector
+    ``theta``; any non-finite value is returned as ``-inf``. The object holds
+    only arrays and configuration: the celerite2 objects are built inside each
+    call and never stored, so the model pickles safely to worker processes.
+
+    Parameters
+    ----------
+    time, flux, flux_err : ndarray of float64, shape (n,)
+        Days; relative flux; one-sigma errors (relative flux). ``time`` must be
+        sorted.
+    config : ModelConfig
+    period_range : (float, float)
+        Period prior limits in days (ignored for the aperiodic model).
+    periodic : bool
+        False gives the aperiodic comparison model (background + jitter + mean).
+    source : str
+        Name used in error messages.
+
+    Use :meth:`from_prepared` to build one from a :class:`PreparedLightCurve`.
+    """
+
+    time: np.ndarray
+    flux: np.ndarray
+    flux_err: np.ndarray
+    config: ModelConfig = field(default_factory=ModelConfig)
+    period_range: tuple[float, float] = (0.1, 100.0)
+    periodic: bool = True
+    source: str = "<array>"
+    basin: tuple[float, float] | None = None
+
+    def __post_init__(self):
+        t = np.ascontiguousarray(self.time, dtype=np.float64)
+        y = np.ascontiguousarray(self.flux, dtype=np.float64)
+        e = np.ascontiguousarray(self.flux_err, dtype=np.float64)
+        if not (t.ndim == y.ndim == e.ndim == 1 and t.size == y.size == e.size):
+            raise InputError(self.source, "time, flux and flux_err must be 1-d of equal length")
+        if t.size < 3:
+            raise InputError(self.source, f"only {t.size} points; the GP model needs at least 3")
+        if not (np.all(np.isfinite(t)) and np.all(np.isfinite(y)) and np.all(np.isfinite(e))):
+            raise InputError(self.source, "non-finite time, flux or flux_err reached the model")
+        if np.any(np.diff(t) < 0):
+            raise InputError(self.source, "times must be sorted for the GP model")
+        if np.any(e < 0):
+            raise InputError(self.source, "negative flux_err")
+        lo, hi = (float(v) for v in self.period_range)
+        if self.periodic and not (0 < lo < hi and np.isfinite(hi)):
+            raise InputError(self.source, f"invalid period range [{lo}, {hi}] d")
+        for arr in (t, y, e):
+            arr.setflags(write=False)
+        object.__setattr__(self, "time", t)
+        object.__setattr__(self, "flux", y)
+        object.__setattr__(self, "flux_err", e)
+        object.__setattr__(self, "_var", e * e)
+        object.__setattr__(self, "period_range", (lo, hi))
+        object.__setattr__(self, "_priors", self._build_priors())
+        if self.basin is not None:
+            blo, bhi = (float(v) for v in self.basin)
+            object.__setattr__(self, "basin", (max(blo, lo), min(bhi, hi)))
+
+    # ------------------------------------------------------------------ set-up
+    @classmethod
+    def from_prepared(
+        cls, prepared: PreparedLightCurve, *, config: ModelConfig | None = None,
+        periodic: bool = True,
+    ) -> RotationModel:
+        """Build the model for a prepared light curve.
+
+        The period prior runs between ``prepared.min_period`` and
+        ``prepared.max_period`` unless ``config.period_range`` is set.
+        """
+        config = config or ModelConfig()
+        lc = prepared.lc
+        if config.period_range is not None:
+            prange = (config.period_range[0], config.period_range[1])
+        else:
+            prange = (float(prepared.min_period), float(prepared.max_period))
+        source = lc.meta.sources[0] if lc.meta.sources else "<array>"
+        err = lc.flux_err if lc.flux_err is not None else np.zeros(len(lc))
+        return cls(
+            time=lc.time, flux=lc.flux, flux_err=err, config=config,
+            period_range=prange, periodic=periodic, source=source,
+        )
+
+    def restricted(self, basin: tuple[float, float] | None) -> RotationModel:
+        """The same posterior with the period confined to ``basin`` (days), or unconfined.
+
+        The prior density keeps its normalisation over the full period range,
+        so the integral of the restricted posterior is the evidence of the
+        basin (the mode's share of the whole).
+        """
+        return replace(self, basin=basin)
+
+    def aperiodic(self) -> RotationModel:
+        """The comparison model without a rotation term (background always on)."""
+        config = replace(self.config, background=True)
+        return replace(self, periodic=False, basin=None, config=config)
+
+    def _build_priors(self) -> dict[str, _Prior]:
+        c = self.config
+        pri: dict[str, _Prior] = {}
+        if self.periodic:
+            lo, hi = self.period_range
+            pri["log_period"] = _Prior("uniform", math.log(lo), math.log(hi))
+            amp = (c.amplitude_ppt[0] * 1e-3, c.amplitude_ppt[1] * 1e-3)
+            pri["log_amplitude"] = _Prior("normal", *_lognormal_from_range(*amp))
+            pri["log_coherence"] = _Prior("normal", *_lognormal_from_range(*c.coherence_rotations))
+            pri["logit_secondary_fraction"] = _Prior("logit-beta", *c.secondary_fraction_beta)
+            pri["logit_secondary_quality"] = _Prior("logit-beta", *c.secondary_quality_beta)
+        if c.background or not self.periodic:
+            pri["log_background_amplitude"] = _Prior(
+                "normal",
+                *_lognormal_from_range(
+                    c.background_amplitude_ppt[0] * 1e-3, c.background_amplitude_ppt[1] * 1e-3
+                ),
+            )
+            pri["log_background_timescale"] = _Prior(
+                "normal", *_lognormal_from_range(*c.background_timescale_days)
+            )
+        pri["log_jitter"] = _Prior(
+            "normal", *_lognormal_from_range(c.jitter_ppt[0] * 1e-3, c.jitter_ppt[1] * 1e-3)
+        )
+        pri["mean"] = _Prior("normal", c.mean[0], c.mean[1])
+        return pri
+
+    @property
+    def names(self) -> tuple[str, ...]:
+        """Names of the unconstrained parameters, in the order of ``theta``."""
+        return tuple(self._priors)
+
+    @property
+    def ndim(self) -> int:
+        return len(self._priors)
+
+    @property
+    def has_background(self) -> bool:
+        return "log_background_amplitude" in self._priors
+
+    # --------------------------------------------------------------- transforms
+    def unpack(self, theta) -> dict[str, float]:
+        """Natural parameters (celerite2's and ours) for one unconstrained vector."""
+        th = dict(zip(self.names, (float(v) for v in theta), strict=True))
+        out: dict[str, float] = {}
+        if self.periodic:
+            rot = math.exp(th["log_coherence"])
+            q1 = 0.5 * math.sqrt(1.0 + (2.0 * math.pi * rot) ** 2)
+            r = special.expit(th["logit_secondary_quality"])
+            out.update(
+                period=math.exp(th["log_period"]),
+                sigma=math.exp(th["log_amplitude"]),
+                coherence_rotations=rot,
+                Q1=q1,
+                Q0=r * (q1 - 0.5),
+                dQ=(1.0 - r) * (q1 - 0.5),
+                f=self.config.max_secondary_fraction
+                * special.expit(th["logit_secondary_fraction"]),
+            )
+        if self.has_background:
+            out["background_sigma"] = math.exp(th["log_background_amplitude"])
+            out["background_tau"] = math.exp(th["log_background_timescale"])
+        out["jitter"] = math.exp(th["log_jitter"])
+        out["mean"] = th["mean"]
+        return out
+
+    def pack(self, **natural) -> np.ndarray:
+        """Unconstrained vector from natural values (inverse of :meth:`unpack`).
+
+        Keywords: ``period`` (d), ``sigma``, ``coherence_rotations``, ``f``, ``r``,
+        ``background_sigma``, ``background_tau`` (d), ``jitter``, ``mean``.
+        """
+        vals = []
+        for name in self.names:
+            if name == "log_period":
+                vals.append(math.log(natural["period"]))
+            elif name == "log_amplitude":
+                vals.append(math.log(natural["sigma"]))
+            elif name == "log_coherence":
+                vals.append(math.log(natural["coherence_rotations"]))
+            elif name == "logit_secondary_fraction":
+                u = natural["f"] / self.config.max_secondary_fraction
+                vals.append(math.log(u) - math.log1p(-u))
+            elif name == "logit_secondary_quality":
+                vals.append(math.log(natural["r"]) - math.log1p(-natural["r"]))
+            elif name == "log_background_amplitude":
+                vals.append(math.log(natural["background_sigma"]))
+            elif name == "log_background_timescale":
+                vals.append(math.log(natural["background_tau"]))
+            elif name == "log_jitter":
+                vals.append(math.log(natural["jitter"]))
+            else:
+                vals.append(float(natural["mean"]))
+        return np.array(vals)
+
+    def physical(self, samples) -> dict[str, np.ndarray]:
+        """Reported quantities for an array of unconstrained samples, shape (n, ndim).
+
+        Returns
+        -------
+        dict of ndarray
+            ``period`` (d), ``amplitude_ppt`` (standard deviation of the rotation
+            signal, ppt), ``coherence_days``, ``coherence_rotations``,
+            ``secondary_fraction`` (f), ``background_amplitude_ppt``,
+            ``background_timescale_days``, ``jitter_ppt``, ``mean`` — those that
+            the model has.
+        """
+        s = np.atleast_2d(np.asarray(samples, dtype=float))
+        col = {n: s[:, i] for i, n in enumerate(self.names)}
+        out: dict[str, np.ndarray] = {}
+        if self.periodic:
+            period = np.exp(col["log_period"])
+            rot = np.exp(col["log_coherence"])
+            out.update(
+                period=period,
+                amplitude_ppt=1e3 * np.exp(col["log_amplitude"]),
+                coherence_rotations=rot,
+                coherence_days=rot * period,
+                secondary_fraction=self.config.max_secondary_fraction
+                * special.expit(col["logit_secondary_fraction"]),
+            )
+        if self.has_background:
+            out["background_amplitude_ppt"] = 1e3 * np.exp(col["log_background_amplitude"])
+            out["background_timescale_days"] = np.exp(col["log_background_timescale"])
+        out["jitter_ppt"] = 1e3 * np.exp(col["log_jitter"])
+        out["mean"] = col["mean"].copy()
+        return out
+
+    # ---------------------------------------------------------------- densities
+    def kernel(self, theta):
+        """The celerite2 term for ``theta`` (built fresh; never cached)."""
+        p = self.unpack(theta)
+        return self._kernel(p)
+
+    def _kernel(self, p):
+        k = None
+        if self.periodic:
+            k = terms.RotationTerm(
+                sigma=p["sigma"], period=p["period"], Q0=p["Q0"], dQ=p["dQ"], f=p["f"]
+            )
+        if self.has_background:
+            # tau = 2 Q / w0  =>  w0 = 2 Q / tau
+            bg = terms.SHOTerm(
+                sigma=p["background_sigma"], w0=2.0 * BACKGROUND_Q / p["background_tau"],
+                Q=BACKGROUND_Q,
+            )
+            k = bg if k is None else k + bg
+        return k
+
+    def log_prior(self, theta) -> float:
+        """Normalised log prior density of the unconstrained vector (``-inf`` outside)."""
+        total = 0.0
+        for value, prior in zip(theta, self._priors.values(), strict=True):
+            total += prior.logpdf(float(value))
+        if self.basin is not None and self.periodic:
+            period = math.exp(float(theta[0]))
+            if not self.basin[0] <= period <= self.basin[1]:
+                return -math.inf
+        return total if math.isfinite(total) else -math.inf
+
+    def log_likelihood(self, theta) -> float:
+        """Gaussian-process log likelihood of the data; ``-inf`` for any non-finite result.
+
+        celerite2 does not validate parameters and, with ``quiet=True``, a
+        failed factorisation gives ``-inf`` or NaN rather than an error; both
+        are mapped to ``-inf`` here.
+        """
+        try:
+            with np.errstate(all="ignore"):
+                p = self.unpack(theta)
+                gp = celerite2.GaussianProcess(self._kernel(p), mean=p["mean"])
+                gp.compute(
+                    self.time, diag=self._var + p["jitter"] ** 2, check_sorted=False, quiet=True
+                )
+                value = gp.log_likelihood(self.flux)
+        except (ValueError, ArithmeticError, np.linalg.LinAlgError):
+            # ValueError: celerite2's own checks; ArithmeticError: float overflow while
+            # mapping parameters; LinAlgError: a failed factorisation that was not quiet.
+            return -math.inf
+        value = float(value)
+        return value if math.isfinite(value) else -math.inf
+
+    def log_prob(self, theta) -> float:
+        """Log posterior (unnormalised by the evidence): log prior + log likelihood."""
+        lp = self.log_prior(theta)
+        if lp == -math.inf:
+            return lp
+        ll = self.log_likelihood(theta)
+        value = lp + ll
+        return value if math.isfinite(value) else -math.inf
+
+    __call__ = log_prob
+
+    # ------------------------------------------------------------------ prior
+    def sample_prior(self, rng: np.random.Generator, size: int) -> np.ndarray:
+        """Draws from the prior in the unconstrained space, shape (size, ndim)."""
+        cols = [p.sample(rng, size) for p in self._priors.values()]
+        return np.column_stack(cols)
+
+    def simulate(self, theta, rng: np.random.Generator) -> np.ndarray:
+        """A flux realisation of the model at ``self.time`` (GP + white noise + mean).
+
+        Uses celerite2's Cholesky factor (``dot_tril``) with normal draws from
+        ``rng`` — not celerite2's own ``sample``, which uses numpy's global
+        random state.
+        """
+        p = self.unpack(theta)
+        gp = celerite2.GaussianProcess(self._kernel(p), mean=p["mean"])
+        gp.compute(self.time, diag=self._var + p["jitter"] ** 2, check_sorted=False)
+        return gp.dot_tril(rng.standard_normal(self.time.size)) + p["mean"]
+
+    def __getstate__(self):
+        # Only data and configuration travel; priors are rebuilt on arrival.
+        return {k: v for k, v in self.__dict__.items() if not k.startswith("_")}
+
+    def __setstate__(self, state):
+        self.__dict__.update(state)
+        object.__setattr__(self, "_var", self.flux_err * self.flux_err)
+        object.__setattr__(self, "_priors", self._build_priors())

@@ -1,0 +1,209 @@
+"""Tests of the Gaussian-process rotation model (rotinfer.model)."""
+
+from __future__ import annotations
+
+import math
+import pickle
+
+import numpy as np
+import pytest
+from scipy import integrate, special, stats
+
+from rotinfer.errors import ConfigError, InputError
+from rotinfer.model import (
+    ModelConfig,
+    RotationModel,
+    coherence_from_quality,
+    quality_from_coherence,
+)
+
+
+def _sho_kernel(tau, s0, w0, q):
+    """Dense SHO covariance for Q > 1/2, written from Foreman-Mackey et al. 2017 (AJ 154,
+    220) eq. 20 — independent of celerite2's code:
+    k(tau) = S0 w0 Q exp(-w0 tau / 2Q) [cos(eta w0 tau) + sin(eta w0 tau) / (2 eta Q)],
+    eta = sqrt(1 - 1/(4 Q^2))."""
+    tau = np.abs(tau)
+    eta = np.sqrt(1.0 - 1.0 / (4.0 * q * q))
+    return (
+        s0 * w0 * q * np.exp(-w0 * tau / (2.0 * q))
+        * (np.cos(eta * w0 * tau) + np.sin(eta * w0 * tau) / (2.0 * eta * q))
+    )
+
+
+def _dense_covariance(model, theta):
+    """Covariance matrix from the published parameter mapping, not from celerite2.
+
+    Rotation term mapping: REFERENCES.md "celerite2 rotation term" (read from celerite2's
+    source): amp = sigma^2/(1+f); Q1 = 1/2 + Q0 + dQ, w1 = 4 pi Q1/(P sqrt(4 Q1^2 - 1)),
+    S1 = amp/(w1 Q1); Q2 = 1/2 + Q0, w2 = 8 pi Q2/(P sqrt(4 Q2^2 - 1)), S2 = f amp/(w2 Q2).
+    Background: SHO with Q = 1/sqrt(2), S0 = sigma^2/(w0 Q), damping time tau = 2Q/w0.
+    """
+    p = model.unpack(theta)
+    lag = model.time[:, None] - model.time[None, :]
+    cov = np.zeros_like(lag)
+    if model.periodic:
+        amp = p["sigma"] ** 2 / (1 + p["f"])
+        q1 = 0.5 + p["Q0"] + p["dQ"]
+        w1 = 4 * np.pi * q1 / (p["period"] * np.sqrt(4 * q1**2 - 1))
+        q2 = 0.5 + p["Q0"]
+        w2 = 8 * np.pi * q2 / (p["period"] * np.sqrt(4 * q2**2 - 1))
+        cov += _sho_kernel(lag, amp / (w1 * q1), w1, q1)
+        cov += _sho_kernel(lag, p["f"] * amp / (w2 * q2), w2, q2)
+    if model.has_background:
+        q = 1 / np.sqrt(2)
+        w0 = 2 * q / p["background_tau"]
+        cov += _sho_kernel(lag, p["background_sigma"] ** 2 / (w0 * q), w0, q)
+    cov[np.diag_indices_from(cov)] += model.flux_err**2 + p["jitter"] ** 2
+    return cov, p["mean"]
+
+
+def _toy_model(rng, n=150, periodic=True, background=True):
+    t = np.sort(rng.uniform(0.0, 20.0, n))
+    y = 1.0 + 2e-3 * np.sin(2 * np.pi * t / 3.1) + 3e-4 * rng.standard_normal(n)
+    err = rng.uniform(2e-4, 4e-4, n)
+    cfg = ModelConfig(background=background)
+    return RotationModel(t, y, err, config=cfg, period_range=(0.3, 10.0), periodic=periodic)
+
+
+@pytest.mark.parametrize("periodic,background", [(True, True), (True, False), (False, True)])
+def test_log_likelihood_matches_dense_multivariate_normal(rng, periodic, background):
+    # Reference: scipy.stats.multivariate_normal.logpdf on the dense covariance built from
+    # the SHO formulas of Foreman-Mackey et al. 2017 eq. 20 (see _dense_covariance).
+    model = _toy_model(rng, periodic=periodic, background=background)
+    draws = model.sample_prior(rng, 8)
+    checked = 0
+    for theta in draws:
+        cov, mean = _dense_covariance(model, theta)
+        ref = stats.multivariate_normal.logpdf(model.flux, mean=np.full(model.flux.size, mean),
+                                               cov=cov)
+        got = model.log_likelihood(theta)
+        assert got == pytest.approx(ref, rel=1e-8), (theta, got, ref)
+        checked += 1
+    assert checked == 8
+
+
+def test_log_prob_is_prior_plus_likelihood(rng):
+    model = _toy_model(rng)
+    theta = model.sample_prior(rng, 1)[0]
+    assert model(theta) == pytest.approx(model.log_prior(theta) + model.log_likelihood(theta))
+
+
+def test_non_finite_likelihood_is_minus_inf(rng):
+    # celerite2 does not validate parameters (REFERENCES.md, "Pitfalls"): an overflowing
+    # amplitude makes its factorisation produce NaN without raising. Show that first,
+    # then that the model turns it into -inf.
+    import celerite2
+    from celerite2 import terms
+
+    model = _toy_model(rng)
+    theta = model.pack(period=3.0, sigma=1e-3, coherence_rotations=5.0, f=0.5, r=0.5,
+                       background_sigma=1e-4, background_tau=1.0, jitter=1e-4, mean=1.0)
+    bad = theta.copy()
+    bad[model.names.index("log_amplitude")] = 400.0  # sigma = e^400 overflows to inf
+    assert np.isfinite(model.log_prior(bad))  # the prior alone does not reject it
+    gp = celerite2.GaussianProcess(
+        terms.RotationTerm(sigma=math.inf, period=3.0, Q0=1.0, dQ=1.0, f=0.5), mean=1.0
+    )
+    gp.compute(model.time, diag=model.flux_err**2, quiet=True)
+    assert not np.isfinite(gp.log_likelihood(model.flux))
+    assert model.log_likelihood(bad) == -math.inf
+    assert model(bad) == -math.inf
+
+    tiny = theta.copy()
+    tiny[model.names.index("log_coherence")] = -800.0  # Q1 -> 1/2 exactly: division by zero
+    assert model(tiny) == -math.inf
+    nan = theta.copy()
+    nan[model.names.index("mean")] = np.nan
+    assert model(nan) == -math.inf
+    outside = theta.copy()
+    outside[0] = math.log(20.0)  # above the 10 d upper period limit
+    assert model(outside) == -math.inf
+    for value in (model(bad), model(tiny), model(nan), model(outside)):
+        assert isinstance(value, float) and value == -math.inf
+
+
+def test_restricted_basin(rng):
+    model = _toy_model(rng)
+    theta = model.sample_prior(rng, 1)[0]
+    theta[0] = math.log(3.0)
+    inside = model.restricted((2.0, 4.0))
+    outside = model.restricted((4.0, 8.0))
+    assert inside(theta) == model(theta)
+    assert outside(theta) == -math.inf
+
+
+def test_priors_are_normalised(rng):
+    # Analytic fact: a proper density integrates to one; the evidence comparison between
+    # the periodic and aperiodic models relies on it.
+    model = _toy_model(rng)
+    for name, prior in model._priors.items():
+        if prior.kind == "uniform":
+            lo, hi = prior.a, prior.b
+        elif prior.kind == "normal":
+            lo, hi = prior.a - 12 * prior.b, prior.a + 12 * prior.b
+        else:
+            lo, hi = -60.0, 60.0
+        total, _ = integrate.quad(lambda x, p=prior: math.exp(p.logpdf(x)), lo, hi, limit=200)
+        assert total == pytest.approx(1.0, abs=1e-6), name
+
+
+def test_logit_beta_prior_draws_follow_scipy_beta(rng):
+    # Reference: scipy.stats.beta (KS test) for u = logistic(x) under a Beta(2, 5) prior.
+    cfg = ModelConfig(secondary_fraction_beta=(2.0, 5.0))
+    t = np.linspace(0, 10, 20)
+    model = RotationModel(t, np.ones(20), np.full(20, 1e-3), config=cfg, period_range=(0.5, 5))
+    draws = model.sample_prior(rng, 4000)[:, model.names.index("logit_secondary_fraction")]
+    assert stats.kstest(special.expit(draws), stats.beta(2.0, 5.0).cdf).pvalue > 1e-3
+    # and the density in x is the Beta density times du/dx = u (1 - u)
+    x = 0.3
+    u = special.expit(x)
+    ref = stats.beta(2.0, 5.0).logpdf(u) + math.log(u * (1 - u))
+    assert model._priors["logit_secondary_fraction"].logpdf(x) == pytest.approx(ref, rel=1e-12)
+
+
+def test_coherence_time_is_sho_damping_time():
+    # SHO damping time tau = 2 Q / w0 (celerite2 SHOTerm documentation), with
+    # w1 = 4 pi Q1 / (P sqrt(4 Q1^2 - 1)) (REFERENCES.md, celerite2 rotation term).
+    period = 7.3
+    for rotations in (0.3, 1.0, 12.0, 400.0):
+        q1 = quality_from_coherence(rotations)
+        w1 = 4 * np.pi * q1 / (period * np.sqrt(4 * q1**2 - 1))
+        assert 2 * q1 / w1 == pytest.approx(rotations * period, rel=1e-12)
+        assert coherence_from_quality(q1) == pytest.approx(rotations, rel=1e-12)
+    # large Q1: tau ~ Q1 P / pi (REFERENCES.md)
+    assert quality_from_coherence(100.0) * period / np.pi == pytest.approx(100.0 * period, 1e-4)
+
+
+def test_pickle_round_trip_and_no_gp_stored(rng):
+    model = _toy_model(rng)
+    theta = model.sample_prior(rng, 1)[0]
+    clone = pickle.loads(pickle.dumps(model))
+    assert clone(theta) == model(theta)
+    assert not any("GaussianProcess" in type(v).__name__ for v in vars(model).values())
+
+
+def test_invalid_inputs_and_config():
+    t = np.linspace(0, 10, 20)
+    with pytest.raises(InputError, match="sorted"):
+        RotationModel(t[::-1], np.ones(20), np.full(20, 1e-3))
+    with pytest.raises(InputError, match="non-finite"):
+        RotationModel(t, np.r_[np.nan, np.ones(19)], np.full(20, 1e-3))
+    with pytest.raises(ConfigError, match="amplitude_ppt"):
+        ModelConfig(amplitude_ppt=(5.0, 1.0))
+    with pytest.raises(ConfigError, match="mean"):
+        ModelConfig(mean=(1.0, -0.1))
+
+
+def test_simulate_has_model_covariance(rng):
+    # The simulated flux has the model's covariance: the empirical covariance of many
+    # draws matches the dense covariance built from the published formulas (Monte Carlo
+    # error ~ sqrt(2/n) of the variance).
+    t = np.linspace(0, 5, 12)
+    model = RotationModel(t, np.ones(12), np.full(12, 1e-3), period_range=(0.5, 5))
+    theta = model.pack(period=2.0, sigma=2e-3, coherence_rotations=3.0, f=0.4, r=0.5,
+                       background_sigma=1e-3, background_tau=0.5, jitter=5e-4, mean=1.0)
+    sims = np.array([model.simulate(theta, rng) for _ in range(4000)])
+    cov, mean = _dense_covariance(model, theta)
+    assert np.allclose(sims.mean(axis=0), mean, atol=5 * np.sqrt(cov.max() / 4000))
+    assert np.allclose(np.cov(sims.T), cov, atol=6 * np.sqrt(2 / 4000) * cov.max())
