@@ -1,0 +1,36 @@
+"""The periodogram stage: classic period searches and candidate periods for the GP fit.
+
+Two baselines every rotation paper reports beside a Bayesian result:
+
+* the generalised Lomb–Scargle periodogram (astropy), with Baluev (2008) false-alarm
+  probabilities and several peaks;
+* the autocorrelation function with McQuillan et al. (2013) peak selection.
+
+Their strongest peaks, with halves and doubles, form a :class:`CandidateSet` that starts the
+Gaussian-process fit. The gradient-of-the-power-spectrum method (Shapiro et al. 2020) is not
+implemented.
+"""
+
+from .acf import ACFPeak, ACFResult, autocorrelation, masked_autocorrelation
+from .candidates import CandidateSet, PeriodCandidate, build_candidates
+from .config import PeriodogramConfig
+from .core import ScanResult, available_methods, scan
+from .lombscargle import LombScargleResult, LSPeak, frequency_grid, lomb_scargle
+
+__all__ = [
+    "ACFPeak",
+    "ACFResult",
+    "CandidateSet",
+    "LSPeak",
+    "LombScargleResult",
+    "PeriodCandidate",
+    "PeriodogramConfig",
+    "ScanResult",
+    "autocorrelation",
+    "available_methods",
+    "build_candidates",
+    "frequency_grid",
+    "lomb_scargle",
+    "masked_autocorrelation",
+    "scan",
+]
