@@ -15,7 +15,13 @@ from .acf import ACFPeak, ACFResult, autocorrelation, masked_autocorrelation
 from .candidates import CandidateSet, PeriodCandidate, build_candidates
 from .config import PeriodogramConfig
 from .core import ScanResult, available_methods, scan
-from .lombscargle import LombScargleResult, LSPeak, frequency_grid, lomb_scargle
+from .lombscargle import (
+    LombScargleResult,
+    LSPeak,
+    fast_method_kwds,
+    frequency_grid,
+    lomb_scargle,
+)
 
 __all__ = [
     "ACFPeak",
@@ -29,6 +35,7 @@ __all__ = [
     "autocorrelation",
     "available_methods",
     "build_candidates",
+    "fast_method_kwds",
     "frequency_grid",
     "lomb_scargle",
     "masked_autocorrelation",

@@ -8,15 +8,24 @@ false-alarm probabilities.
 
 from __future__ import annotations
 
+import inspect
 from dataclasses import dataclass
 
 import numpy as np
 from astropy.timeseries import LombScargle
+from astropy.timeseries.periodograms.lombscargle.implementations.fast_impl import (
+    lombscargle_fast,
+)
 from scipy.signal import find_peaks
 
+from ..errors import ConfigError
 from .config import PeriodogramConfig
 
-__all__ = ["LombScargleResult", "LSPeak", "frequency_grid", "lomb_scargle"]
+__all__ = ["LombScargleResult", "LSPeak", "fast_method_kwds", "frequency_grid", "lomb_scargle"]
+
+# astropy 8 added a choice of algorithm to its fast method (and made the slower, more
+# accurate "lra" the default); earlier versions only have Press & Rybicki's ("fasper").
+_FAST_HAS_ALGORITHM = "algorithm" in inspect.signature(lombscargle_fast).parameters
 
 # Points of the local grid each peak is refined on (spanning +-1 step of the main grid).
 _ZOOM_POINTS = 9
@@ -73,7 +82,7 @@ class LombScargleResult:
     oversampling : float
         Grid points per peak width actually used.
     implementation : str
-        astropy method used for the grid.
+        astropy method used for the grid (with the fast method's algorithm).
     """
 
     peaks: tuple[LSPeak, ...]
@@ -121,6 +130,25 @@ class LombScargleResult:
 
 def _finite_or_none(x: float) -> float | None:
     return float(x) if np.isfinite(x) else None
+
+
+def fast_method_kwds(algorithm: str) -> dict:
+    """``method_kwds`` for astropy's ``"fast"`` Lomb–Scargle with the chosen algorithm.
+
+    ``"fasper"`` is Press & Rybicki (1989) extirpolation, here with 8 neighbouring grid
+    points per sample (astropy's default is 4; 8 costs almost nothing more and is about 50
+    times more accurate); ``"lra"`` is the low-rank approximation of Ruiz-Antolin & Townsend
+    (2018), astropy 8's default. Before astropy 8 only ``"fasper"`` exists.
+    """
+    if algorithm == "lra":
+        if not _FAST_HAS_ALGORITHM:
+            raise ConfigError("[periodogram] ls_fast_algorithm: 'lra' needs astropy >= 8; "
+                              "choose 'fasper' or upgrade astropy")
+        return {"algorithm": "lra"}
+    kwds: dict = {"trig_sum_kwds": {"Mfft": 8}}
+    if _FAST_HAS_ALGORITHM:
+        kwds["algorithm"] = "fasper"
+    return kwds
 
 
 def frequency_grid(
@@ -188,7 +216,13 @@ def lomb_scargle(
     -----
     The periodogram is ``astropy.timeseries.LombScargle(time, flux, flux_err, fit_mean=True,
     center_data=True, nterms=1, normalization="standard")`` evaluated on
-    :func:`frequency_grid`. Peaks are local maxima at least one peak width apart
+    :func:`frequency_grid`. With ``ls_implementation="auto"`` astropy's own rule applies: its
+    ``"fast"`` method for more than 200 frequencies, else the exact ``"cython"`` one. The fast
+    method uses ``ls_fast_algorithm`` (``"fasper"`` by default, see :func:`fast_method_kwds`:
+    its power differed from the exact one by at most 5e-9 on a 65,000-point light curve and
+    2e-6 on a 560-point one, at a fifth of the cost of ``"lra"``).
+
+    Peaks are local maxima at least one peak width apart
     (``oversampling`` grid steps); each is refined by evaluating the exact (``"cython"``)
     periodogram on a 9-point grid spanning one main-grid step either side and taking the
     vertex of a parabola through the three highest points (our own refinement); the power
@@ -199,7 +233,8 @@ def lomb_scargle(
     ----------
     Lomb 1976, Ap&SS 39, 447; Scargle 1982, ApJ 263, 835; Zechmeister & Kürster 2009,
     A&A 496, 577 (generalised, floating mean); Baluev 2008, MNRAS 385, 1279 (false-alarm
-    probability); VanderPlas 2018, ApJS 236, 16 (implementation and grid choices).
+    probability); VanderPlas 2018, ApJS 236, 16 (implementation and grid choices); Press &
+    Rybicki 1989, ApJ 338, 277 (fast algorithm).
     """
     baseline = float(time.max() - time.min())
     frequency, oversampling = frequency_grid(
@@ -210,7 +245,11 @@ def lomb_scargle(
         time, flux, flux_err, fit_mean=True, center_data=True, nterms=1,
         normalization="standard",
     )
-    power = np.asarray(ls.power(frequency, method=config.ls_implementation), dtype=float)
+    method = config.ls_implementation
+    if method == "auto":  # astropy's own rule for one term and a regular grid
+        method = "fast" if frequency.size > 200 else "cython"
+    kwds = fast_method_kwds(config.ls_fast_algorithm) if method == "fast" else None
+    power = np.asarray(ls.power(frequency, method=method, method_kwds=kwds), dtype=float)
 
     step = max(int(round(oversampling)), 1)
     idx, _ = find_peaks(power, distance=step)
@@ -249,7 +288,7 @@ def lomb_scargle(
     return LombScargleResult(
         peaks=tuple(peaks), frequency=frequency, power=power, min_period=float(min_period),
         max_period=float(max_period), oversampling=oversampling,
-        implementation=config.ls_implementation,
+        implementation=method if kwds is None else f"{method} ({config.ls_fast_algorithm})",
     )
 
 
