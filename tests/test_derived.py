@@ -290,6 +290,12 @@ def test_to_dict_is_json_and_lines_have_units():
     assert "rossby_cranmer_saar2011" in block["skipped"]
     text = "\n".join(res.lines())
     assert "km/s" in text and "deg" in text and "Myr" in text and "source:" in text
+    row = res.to_row()
+    assert row["equatorial_velocity_kms"] == res["equatorial_velocity"].median
+    assert row["gyro_age_angus2015_myr_hi68"] == res["gyro_age_angus2015"].interval_68[1]
+    assert np.isnan(row["rossby_cranmer_saar2011"])  # not derived: no Teff
+    # Same columns for every star, whatever was derived (a catalogue needs that).
+    assert list(derive([5.0], None).to_row()) == list(row)
 
 
 def test_no_stellar_parameters_derives_nothing():

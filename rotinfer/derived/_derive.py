@@ -43,7 +43,7 @@ _I_SOURCE = (
     "v from 2 pi R / P"
 )
 _BINARY_FLAG = (
-    "period {p} d is below 7 d: 59 % of 1.5-7 d rotators in the Kepler field are photometric "
+    "period {p} d is below 7 d: 59 % of 1.5-7 d rotators are photometric "
     "binaries (Simonian et al. 2019), and tidally locked or interacting binaries spin faster "
     "than single stars, so this age may be far too young"
 )

@@ -294,6 +294,20 @@ def _fmt(x: float) -> str:
     return f"{x:.{max(0, 2 - mag)}f}"
 
 
+# Names and units of every quantity ``derive`` can produce besides the gyro ages.
+_QUANTITY_UNITS = {
+    "equatorial_velocity": "km/s",
+    "inclination": "deg",
+    "cos_inclination": "",
+    "turnover_time_wright2011": "d",
+    "rossby_wright2011": "",
+    "turnover_time_cranmer_saar2011": "d",
+    "rossby_cranmer_saar2011": "",
+}
+_FIXED_QUANTITIES = tuple(_QUANTITY_UNITS)
+_UNIT_SUFFIX = {"km/s": "kms", "deg": "deg", "d": "d", "Myr": "myr"}
+
+
 @dataclass(frozen=True)
 class DerivedResult:
     """Everything :func:`rotinfer.derived.derive` found, ready for JSON and printing.
@@ -333,14 +347,38 @@ class DerivedResult:
 
     @property
     def cautions(self) -> tuple[str, ...]:
-        """All flags, each once, prefixed by the quantity they belong to."""
+        """All flags, each text once, prefixed by the first quantity it belongs to."""
         out: list[str] = []
+        seen: set[str] = set()
         for q in self.quantities:
             for f in q.flags:
-                line = f"{q.label}: {f}"
-                if line not in out:
-                    out.append(line)
+                if f not in seen:
+                    seen.add(f)
+                    out.append(f"{q.label}: {f}")
         return tuple(out)
+
+    def to_row(self, *, relations=("barnes2007", "mamajek2008", "angus2015")) -> dict[str, Any]:
+        """One flat catalogue row with a fixed set of columns (NaN where not derived).
+
+        For every quantity the package can derive (gyro ages for ``relations``) there are
+        three columns ``<name>_<unit>``, ``<name>_<unit>_lo68`` and ``<name>_<unit>_hi68``
+        (unit suffix ``kms``, ``deg``, ``d`` or ``myr``; none for dimensionless numbers),
+        then ``derived_n_cautions`` (int) and ``derived_cautions`` (text joined by ``" | "``).
+        """
+        names = [*_FIXED_QUANTITIES, *(f"gyro_age_{r}" for r in relations)]
+        by_name = {q.name: q for q in self.quantities}
+        row: dict[str, Any] = {}
+        for name in names:
+            unit = _QUANTITY_UNITS.get(name, "Myr" if name.startswith("gyro_age_") else "")
+            col = name + (f"_{_UNIT_SUFFIX[unit]}" if unit else "")
+            q = by_name.get(name)
+            row[col] = q.median if q else math.nan
+            row[col + "_lo68"] = q.interval_68[0] if q else math.nan
+            row[col + "_hi68"] = q.interval_68[1] if q else math.nan
+        cautions = self.cautions
+        row["derived_n_cautions"] = len(cautions)
+        row["derived_cautions"] = " | ".join(cautions)
+        return row
 
     def to_dict(self) -> dict[str, Any]:
         """The ``derived`` block of ``summary.json`` (plain JSON types only)."""
