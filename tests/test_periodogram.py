@@ -269,9 +269,11 @@ def test_bad_inputs_raise_input_error():
         scan(_prepared(t, np.ones(5), np.full(5, 1e-3), min_period=0.5, max_period=3.0))
     t = np.linspace(0, 10, 50)
     with pytest.raises(InputError, match="must be finite and positive"):
-        scan(_prepared(t, np.ones(50), np.zeros(50), min_period=0.5, max_period=3.0))
+        scan(_prepared(t, 1 + np.sin(t), np.zeros(50), min_period=0.5, max_period=3.0))
+    with pytest.raises(InputError, match="flux is constant"):
+        scan(_prepared(t, np.ones(50), np.full(50, 1e-3), min_period=0.5, max_period=3.0))
     with pytest.raises(InputError, match="empty period range"):
-        scan(_prepared(t, np.ones(50), np.full(50, 1e-3), min_period=0.5, max_period=0.3))
+        scan(_prepared(t, 1 + np.sin(t), np.full(50, 1e-3), min_period=0.5, max_period=0.3))
 
 
 def test_to_dict_is_json_ready_with_periods_in_days(rng):

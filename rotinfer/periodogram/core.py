@@ -188,6 +188,8 @@ def _validate(prepared: PreparedLightCurve, config: PeriodogramConfig) -> tuple[
         raise InputError(source, "flux uncertainties must be finite and positive for the "
                                  "period search (prepare() provides them)")
     time, flux, err = time[good], flux[good], err[good]
+    if np.ptp(flux) == 0:
+        raise InputError(source, "flux is constant; there is no variability to search")
     order = np.argsort(time, kind="stable")
     time, flux, err = time[order], flux[order], err[order]
     baseline = float(time[-1] - time[0])
