@@ -44,7 +44,7 @@ def plot_scan(prepared, result, *, path: str | Path | None = None,
     ax = axes[0]
     ax.plot(lc.time, (lc.flux - np.median(lc.flux)) * 1e3, ".", ms=1.5, color="0.2",
             rasterized=lc.time.size > 5000)
-    ax.set_xlabel(f"Time (d, from {lc.meta.time_system} {lc.meta.time_reference:g})")
+    ax.set_xlabel(_time_label(lc.meta))
     ax.set_ylabel("Flux (ppt)")
     ax.set_title(title if title is not None else result.identifier or lc.meta.identifier)
     k = 1
@@ -55,16 +55,20 @@ def plot_scan(prepared, result, *, path: str | Path | None = None,
         k += 1
         ax.plot(ls.periods, ls.power, lw=0.8, color="C0")
         ax.set_xscale("log")
+        labelled: list[float] = []
         for j, peak in enumerate(ls.peaks):
             ax.plot(peak.period, peak.power, "v", color="C3" if j == 0 else "C1", ms=6)
-            ax.annotate(f"{peak.period:.3g} d", (peak.period, peak.power),
-                        textcoords="offset points", xytext=(4, 4), fontsize=8)
+            # Label only peaks well apart (in log period) from those already labelled.
+            if all(abs(np.log10(peak.period / p)) > 0.05 for p in labelled):
+                labelled.append(peak.period)
+                ax.annotate(f"{peak.period:.3g} d", (peak.period, peak.power),
+                            textcoords="offset points", xytext=(4, 4), fontsize=8)
         ax.set_xlim(ls.min_period, ls.max_period)
         ax.set_xlabel("Period (d)")
         ax.set_ylabel("Lomb–Scargle power\n(normalised)")
         if ls.peaks:
             ax.set_title(f"highest peak {ls.period:.4g} d, power {ls.peak_power:.3f}, "
-                         f"false-alarm probability {ls.false_alarm_probability:.2g}",
+                         f"false-alarm probability {_probability(ls.false_alarm_probability)}",
                          fontsize=9)
 
     acf = result.acf
@@ -75,6 +79,9 @@ def plot_scan(prepared, result, *, path: str | Path | None = None,
         for p in acf.selected:
             ax.plot(p.lag, p.height, "v", color="C3", ms=6)
         ax.axhline(0.0, color="0.5", lw=0.5)
+        if acf.lags.size > 1:
+            last = acf.selected[-1].lag if acf.selected else 0.0
+            ax.set_xlim(0.0, min(acf.lags[-1], max(1.2 * last, acf.max_period)))
         ax.set_xlabel("Lag (d)")
         ax.set_ylabel("Autocorrelation")
         ax.legend(loc="upper right", fontsize=8, frameon=False)
@@ -87,3 +94,16 @@ def plot_scan(prepared, result, *, path: str | Path | None = None,
     if path is not None:
         fig.savefig(path, dpi=120)
     return fig
+
+
+def _time_label(meta) -> str:
+    """Axis label for relative times, naming the reference epoch when one is known."""
+    if meta.time_reference == 0 and meta.time_system in ("", "unknown"):
+        return "Time (d)"
+    system = "" if meta.time_system in ("", "unknown") else f" {meta.time_system}"
+    return f"Time (d after{system} {meta.time_reference:.10g})"
+
+
+def _probability(p: float) -> str:
+    """A probability for display; astropy's Baluev bound underflows to 0 for strong peaks."""
+    return "< 1e-16" if p < 1e-16 else f"{p:.2g}"
