@@ -1,0 +1,56 @@
+"""Helpers shared by the survey test files: call logs, file snapshots, table comparison."""
+
+from __future__ import annotations
+
+import hashlib
+from pathlib import Path
+
+import numpy as np
+from astropy.table import Table
+
+NAMES = ["alpha", "beta", "gamma", "delta"]
+
+
+def calls(log: Path) -> list[str]:
+    """Identifiers in the order the analysis was called (see ``survey_seams._log_call``)."""
+    if not log.exists():
+        return []
+    return [line.split("\t")[0] for line in log.read_text().splitlines()]
+
+
+def snapshot(folder: Path) -> dict[str, tuple[int, int, str]]:
+    """inode, mtime (ns) and SHA-256 of every file under ``folder``."""
+    out = {}
+    for p in sorted(folder.rglob("*")):
+        if p.is_file():
+            st = p.stat()
+            out[str(p.relative_to(folder))] = (
+                st.st_ino, st.st_mtime_ns, hashlib.sha256(p.read_bytes()).hexdigest()
+            )
+    return out
+
+
+def comparable(path: Path) -> Table:
+    """A catalogue without its only run-dependent column (wall time)."""
+    table = Table.read(path, format="ascii.ecsv")
+    del table["wall_time"]
+    return table
+
+
+def assert_tables_equal(a: Table, b: Table) -> None:
+    """Same columns, masks and values exactly (the runs must be bit-for-bit identical)."""
+    assert a.colnames == b.colnames
+    assert len(a) == len(b)
+    for name in a.colnames:
+        x, y = a[name], b[name]
+        assert list(np.ma.getmaskarray(x)) == list(np.ma.getmaskarray(y)), name
+        if x.dtype.kind == "U":
+            assert list(x) == list(y), name
+        else:
+            assert np.array_equal(np.ma.filled(x, 0), np.ma.filled(y, 0)), name
+
+
+def assert_no_leftovers(out: Path) -> None:
+    """No temporary or set-aside folder is left in ``out/stars``."""
+    hidden = [p.name for p in (out / "stars").iterdir() if p.name.startswith(".")]
+    assert hidden == []
