@@ -183,13 +183,14 @@ class LocalExecutor:
 
 def _terminate(pool: cf.ProcessPoolExecutor) -> None:
     """Cancel pending work and end a pool's processes without waiting for running stars."""
-    pool.shutdown(wait=False, cancel_futures=True)
     if hasattr(pool, "terminate_workers"):  # Python >= 3.14
         pool.terminate_workers()
         return
     # Before 3.14 there is no public way to stop a running worker; CPython has kept
-    # the worker Process objects in ``_processes`` since 3.2.
+    # the worker Process objects in ``_processes`` since 3.2 (shutdown clears it, so
+    # take them first).
     processes = list((getattr(pool, "_processes", None) or {}).values())
+    pool.shutdown(wait=False, cancel_futures=True)
     for p in processes:
         if p.is_alive():
             p.terminate()
