@@ -16,3 +16,6 @@ __all__ = ["EXIT_BAD_INPUT", "EXIT_INTERNAL", "EXIT_OK", "cli", "main", "run"]
 
 def run() -> None:  # pragma: no cover - exercised through the console script
     sys.exit(main())
+
+
+from . import survey  # noqa: E402,F401  isort: skip
