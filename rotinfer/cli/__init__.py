@@ -19,3 +19,4 @@ def run() -> None:  # pragma: no cover - exercised through the console script
 
 
 from . import survey  # noqa: E402,F401  isort: skip
+from . import simulate  # noqa: E402,F401  isort: skip
