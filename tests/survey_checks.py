@@ -19,10 +19,13 @@ def calls(log: Path) -> list[str]:
 
 
 def snapshot(folder: Path) -> dict[str, tuple[int, int, str]]:
-    """inode, mtime (ns) and SHA-256 of every file under ``folder``."""
+    """inode, mtime (ns) and SHA-256 of every file in the star folders under ``folder``.
+
+    Files directly in ``folder`` (the survey's vetting page) are rewritten by every run.
+    """
     out = {}
     for p in sorted(folder.rglob("*")):
-        if p.is_file():
+        if p.is_file() and p.parent != folder:
             st = p.stat()
             out[str(p.relative_to(folder))] = (
                 st.st_ino, st.st_mtime_ns, hashlib.sha256(p.read_bytes()).hexdigest()

@@ -47,6 +47,9 @@ def test_catalogue_has_one_row_per_star_with_units_and_provenance(lcs, tmp_path)
         summary = json.loads((tmp_path / "o" / row["folder"] / "summary.json").read_text())
         assert row["period"] == summary["period"]["median"]
         assert row["period_hi95"] == summary["period"]["interval_95"][1]
+    # The survey's vetting page (rotinfer.report) links every analysed star.
+    page = (tmp_path / "o" / "stars" / "vetting.html").read_text()
+    assert all(f"{n}/index.html" in page for n in NAMES)
     csv = Table.read(tmp_path / "o" / "catalog.csv", format="ascii.csv")
     assert list(csv["identifier"]) == list(t["identifier"])
     np.testing.assert_allclose(csv["period"], t["period"], rtol=1e-15)

@@ -182,6 +182,12 @@ def build_catalog(records: Sequence[StarRecord], store: SurveyStore, *, meta: di
             table[f"derived_{key}{suffix}"] = _column(
                 MaskedColumn, values, "float", unit, f"Derived: {label}, {what}"
             )
+    if derived:
+        texts = [" | ".join(str(c) for c in ((s or {}).get("derived") or {}).get("cautions", ()))
+                 for s in summaries]
+        table["derived_cautions"] = _column(
+            MaskedColumn, texts, "str", None, "Cautions on the derived quantities, joined by ' | '"
+        )
     table.meta.update(
         {
             "rotinfer_version": __version__,

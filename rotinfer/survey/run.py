@@ -250,6 +250,7 @@ def run_survey(
             records = _catalogued(tasks, store, wh)
             table = build_catalog(records, store, meta=meta)
             catalog, _ = write_catalog(table, store.out)
+            _write_vetting_page(store, records)
     result = SurveyResult(
         out=store.out, catalog=catalog, records=tuple(records), n_stars=len(tasks),
         n_reused=len(reused), n_computed=len(computed), config_hash=chash,
@@ -287,6 +288,18 @@ def _write_run_file(store, config, meta, tasks, executor_name) -> None:
         "config": dataclass_to_dict(config),
     }
     atomic_write_text(store.out / "survey.json", json.dumps(info, indent=2, default=str) + "\n")
+
+
+def _write_vetting_page(store: SurveyStore, records) -> None:
+    """``stars/vetting.html``: every analysed star in one sortable page (see rotinfer.report).
+
+    Star pages are left as the pipeline wrote them, so finished folders are never touched.
+    """
+    if not any(r.status == "ok" for r in records):
+        return
+    from ..report import write_vetting_page
+
+    write_vetting_page(store.stars, star_pages=False)
 
 
 def _catalogued(tasks, store, wh) -> list[StarRecord]:
