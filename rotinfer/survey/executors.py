@@ -278,7 +278,13 @@ class DaskExecutor:
             raise
 
     def _check_versions(self) -> None:
-        versions = self._client.run(_rotinfer_version)
+        try:
+            versions = self._client.run(_rotinfer_version)
+        except Exception as exc:  # whatever a worker raised (typically ModuleNotFoundError)
+            raise ConfigError(
+                f"Dask workers cannot run rotinfer ({type(exc).__name__}: {exc}); "
+                "install the same rotinfer version on every worker"
+            ) from None
         wrong = sorted({v for v in versions.values() if v != __version__})
         if wrong:
             raise ConfigError(

@@ -363,8 +363,8 @@ def _drive(pool, todo, job, store, computed, guard, bar, retries) -> None:
                     _record_crash(store, task, job, exc, crashes[task.identifier], computed, bar)
                 else:
                     suspects.append(task)
-            elif pool.is_crash(exc):
-                _record_crash(store, task, job, exc, retries + 1, computed, bar)
+            elif pool.is_crash(exc):  # Dask: the scheduler's allowed-failures ran out
+                _record_crash(store, task, job, exc, None, computed, bar)
             elif guard.signum:
                 continue
             else:
@@ -405,9 +405,10 @@ def _failure_record(task, job, failure, error) -> StarRecord:
 
 
 def _record_crash(store, task, job, exc, deaths, computed, bar) -> None:
+    times = "repeatedly" if deaths is None else f"{deaths} time(s)"
     rec = _failure_record(
         task, job, "crashed",
-        f"WorkerDied: the worker process died while running this star ({deaths} time(s)): "
+        f"WorkerDied: the worker process died while running this star ({times}): "
         + _one_line(exc),
     )
     store.write_record(rec, run_token=job["run_token"])
