@@ -9,7 +9,7 @@ import sys
 from ._app import EXIT_BAD_INPUT, EXIT_INTERNAL, EXIT_OK, cli, main
 
 # Subcommands register themselves on ``cli`` when imported (one module each).
-# from . import scan  (enabled once rotinfer.io and rotinfer.prepare exist)
+from . import scan  # noqa: F401  isort: skip
 
 __all__ = ["EXIT_BAD_INPUT", "EXIT_INTERNAL", "EXIT_OK", "cli", "main", "run"]
 

@@ -221,7 +221,7 @@ def _check_values(
             raise InputError(
                 raw.source,
                 f"{int(bad.sum())} uncertainty value(s) <= 0 in column {name!r} (first "
-                f"{values[first]!r} at {raw.where(first)}); uncertainties must be positive",
+                f"{float(values[first])!r} at {raw.where(first)}); uncertainties must be positive",
             )
 
 

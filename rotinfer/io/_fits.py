@@ -92,7 +92,11 @@ def _columns(hdu) -> tuple[dict, dict]:
     return columns, units
 
 
-def read_fits_table(path: Path, source: str) -> RawTable:
+def _first_line(text: str, limit: int = 120) -> str:
+    return " ".join(str(text).split())[:limit]
+
+
+def read_fits_table(path: Path, source: str, *, gz: bool = False) -> RawTable:
     """Read the light-curve table of a FITS file.
 
     Raises
@@ -102,6 +106,11 @@ def read_fits_table(path: Path, source: str) -> RawTable:
     """
     from astropy.io import fits
 
+    if not gz:
+        size = path.stat().st_size
+        if size % 2880:  # the FITS standard writes whole 2880-byte blocks
+            raise InputError(source, f"truncated or corrupt FITS file ({size} bytes is not a "
+                                     "whole number of 2880-byte FITS blocks)")
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         try:
@@ -110,6 +119,9 @@ def read_fits_table(path: Path, source: str) -> RawTable:
                 headers = [hdu.header for hdu in hdul]
                 tables = [h for h in hdul if isinstance(h, fits.BinTableHDU | fits.TableHDU)]
                 if not tables:
+                    if caught:
+                        raise InputError(source, "corrupt FITS file: an extension could not be "
+                                                 f"read ({_first_line(caught[0].message)})")
                     kinds = ", ".join(type(h).__name__.replace("HDU", "") for h in hdul)
                     raise InputError(source, f"FITS file has no table extension (HDUs: {kinds})")
                 chosen = None
@@ -129,10 +141,12 @@ def read_fits_table(path: Path, source: str) -> RawTable:
         except InputError:
             raise
         except (OSError, ValueError, TypeError, IndexError, KeyError, EOFError) as exc:
-            text = " ".join(str(exc).split())[:120]
-            raise InputError(source, f"corrupt or unreadable FITS file ({text})") from None
-    for warning in caught:
-        text = str(warning.message)
-        if "truncated" in text.lower():
-            raise InputError(source, "truncated FITS file (the data end before the header says)")
+            if any("truncated" in str(w.message).lower() for w in caught):
+                raise InputError(source, "truncated FITS file (the data end before the header "
+                                         "says they should)") from None
+            raise InputError(source, f"corrupt or unreadable FITS file ({_first_line(exc)})"
+                             ) from None
+    if any("truncated" in str(w.message).lower() for w in caught):
+        raise InputError(source, "truncated FITS file (the data end before the header says "
+                                 "they should)")
     return RawTable(source=source, columns=columns, units=units, keywords=keywords, notes=notes)

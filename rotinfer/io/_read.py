@@ -33,8 +33,8 @@ def _suffix(path: Path) -> str:
     return Path(name).suffix
 
 
-def _open_checked(path: Path, source: str) -> bytes:
-    """The first bytes of the file (decompressed when gzip), after the usual checks."""
+def _open_checked(path: Path, source: str) -> tuple[bytes, bool]:
+    """The first bytes of the file (decompressed when gzip) and whether it is gzip."""
     try:
         if path.is_dir():
             raise InputError(source, "is a directory, not a light-curve file")
@@ -50,7 +50,8 @@ def _open_checked(path: Path, source: str) -> bytes:
         raise InputError(source, f"cannot read ({exc.strerror or exc})") from None
     if not head:
         raise InputError(source, "file is empty (0 bytes)")
-    if head[:2] == b"\x1f\x8b":
+    gz = head[:2] == b"\x1f\x8b"
+    if gz:
         try:
             with gzip.open(path, "rb") as fh:
                 head = fh.read(_SNIFF)
@@ -58,7 +59,7 @@ def _open_checked(path: Path, source: str) -> bytes:
             raise InputError(source, "corrupt or truncated gzip data") from None
         if not head:
             raise InputError(source, "file is empty (gzip holds 0 bytes)")
-    return head
+    return head, gz
 
 
 def _looks_binary(head: bytes) -> bool:
@@ -68,9 +69,9 @@ def _looks_binary(head: bytes) -> bool:
     return control > 0.01 * len(head)
 
 
-def _read_text_file(path: Path, source: str) -> str:
+def _read_text_file(path: Path, source: str, *, gz: bool) -> str:
     try:
-        if path.name.lower().endswith(".gz") or path.open("rb").read(2) == b"\x1f\x8b":
+        if gz:
             with gzip.open(path, "rb") as fh:
                 data = fh.read()
         else:
@@ -140,7 +141,7 @@ def read_light_curve(
     """
     path = Path(path)
     source = str(path)
-    head = _open_checked(path, source)
+    head, gz = _open_checked(path, source)
     suffix = _suffix(path)
     options = dict(
         time_column=time_column, flux_column=flux_column, flux_err_column=flux_err_column,
@@ -148,7 +149,7 @@ def read_light_curve(
         magnitudes=magnitudes, identifier=identifier,
     )
     if head.startswith(b"SIMPLE  ="):
-        raw = read_fits_table(path, source)
+        raw = read_fits_table(path, source, gz=gz)
     elif suffix in FITS_SUFFIXES:
         raise InputError(source, "not a valid FITS file (it does not start with a SIMPLE card)")
     elif head.lstrip().startswith(b"# %ECSV"):
@@ -158,7 +159,7 @@ def read_light_curve(
     elif _looks_binary(head):
         raise InputError(source, "binary data that is neither FITS nor a text table")
     else:
-        raw = parse_text(_read_text_file(path, source), source)
+        raw = parse_text(_read_text_file(path, source, gz=gz), source)
     return build_light_curve(raw, **options)
 
 

@@ -39,7 +39,7 @@ def raw_from_table(table, source: str) -> RawTable:
         if isinstance(col, Time):
             jd1 = np.asarray(col.jd1, dtype=np.float64).ravel()
             jd2 = np.asarray(col.jd2, dtype=np.float64).ravel()
-            mask = np.ma.getmaskarray(col.mask) if getattr(col, "masked", False) else None
+            mask = np.asarray(col.mask, dtype=bool).ravel() if col.masked else None
             finite = np.isfinite(jd1 + jd2)
             if mask is not None:
                 finite &= ~mask
@@ -59,8 +59,10 @@ def raw_from_table(table, source: str) -> RawTable:
         unit = getattr(col, "unit", None)
         if unit is not None:
             units[name] = unit.to_string()
-        if getattr(col, "mask", None) is not None and np.ma.getmaskarray(col.mask).any():
-            columns[name] = np.ma.MaskedArray(np.asarray(col.data), mask=np.asarray(col.mask))
+        mask = getattr(col, "mask", None)
+        if mask is not None and np.asarray(mask, dtype=bool).any():
+            columns[name] = np.ma.MaskedArray(np.asarray(col.data),
+                                              mask=np.asarray(mask, dtype=bool))
         else:
             columns[name] = np.asarray(col)
     keywords: dict = {}
