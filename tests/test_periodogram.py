@@ -22,6 +22,13 @@ from rotinfer.periodogram import (
     masked_autocorrelation,
     scan,
 )
+from rotinfer.simulate import (
+    ObservingPattern,
+    SimulatedStar,
+    SpotSet,
+    StarParameters,
+    simulate_star,
+)
 
 
 def _prepared(time, flux, flux_err, *, min_period, max_period, cadence=None, name="demo-star"):
@@ -348,3 +355,36 @@ def test_plot_scan_writes_figure_with_units(rng, tmp_path):
     labels = [ax.get_xlabel() for ax in fig.axes]
     assert labels[1:] == ["Period (d)", "Lag (d)"] and "(d" in labels[0]
     assert fig.axes[0].get_ylabel() == "Flux (ppt)"
+
+
+# --------------------------------------------------------------------------- simulated star
+
+
+@pytest.mark.parametrize(("latitudes", "areas", "acf_finds_period"), [
+    ((20.0, -20.0), (0.010, 0.008), True),   # unequal spots: the light curve repeats every P
+    ((20.0, 20.0), (0.010, 0.010), False),   # twin spots: it very nearly repeats every P/2
+])
+def test_two_dip_simulated_star_keeps_true_period(latitudes, areas, acf_finds_period):
+    # Two long-lived spots on opposite longitudes (rotinfer.simulate: limb-darkened sphere,
+    # Dorren 1987 small spots) give two dips per rotation; the truth is the simulator's input.
+    period = 8.3
+    params = StarParameters(period=period, inclination=70.0, white_noise=0.3, granulation=0.0,
+                            flare_rate=0.0)
+    pattern = ObservingPattern.space(4, 27.4, 30.0, segment_offset=0.0)
+    spots = SpotSet(latitude=list(latitudes), longitude=[0.0, 180.0],
+                    t_emerge=[-100.0, -100.0], t_grow=[0.0, 0.0], t_decay=[5000.0, 5000.0],
+                    area_max=list(areas))
+    star: SimulatedStar = simulate_star(params, pattern, seed=3, name="demo-two-dip",
+                                        spots=spots)
+    assert star.truth.period_min == star.truth.period_max == period
+    lc = star.lc
+    prepared = PreparedLightCurve(lc=lc, min_period=0.2, max_period=lc.baseline / 2,
+                                  cadence=30.0 / 1440.0)
+    res = scan(prepared)
+    # The harmonic trap is there: the strongest periodogram peak is at half the period.
+    assert res.lomb_scargle.period == pytest.approx(period / 2, rel=0.01)
+    # ... and the candidate set still holds the true period.
+    assert res.candidates.contains(period, rtol=0.01)
+    if acf_finds_period:
+        assert res.acf.period == pytest.approx(period, rel=0.01)
+        assert res.candidates.candidates[0].period == pytest.approx(period, rel=0.01)
