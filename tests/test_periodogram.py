@@ -2,8 +2,10 @@
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -12,7 +14,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from rotinfer import ConfigError, InputError, LightCurve, LightCurveMeta, PreparedLightCurve
-from rotinfer.config import dataclass_from_mapping
+from rotinfer.config import dataclass_from_mapping, read_toml
+from rotinfer.io import from_arrays
 from rotinfer.periodogram import (
     CandidateSet,
     PeriodogramConfig,
@@ -22,6 +25,7 @@ from rotinfer.periodogram import (
     masked_autocorrelation,
     scan,
 )
+from rotinfer.prepare import prepare
 from rotinfer.simulate import (
     ObservingPattern,
     SimulatedStar,
@@ -171,6 +175,20 @@ def test_daily_sampling_has_no_candidate_below_cadence_limit(rng):
     assert all(p.period >= 2.0 for p in res.lomb_scargle.peaks)
     assert any("minimum period raised" in note for note in res.notes)
     assert res.candidates.contains(period, rtol=5e-3)
+
+
+def test_daily_sampling_through_prepare(rng):
+    # Common practice (Nyquist), through the real preparation stage: even when the user asks
+    # prepare() for periods down to 0.5 d, daily data give no candidate below 2 d.
+    t = np.arange(0, 400, 1.0) + rng.normal(0, 0.01, 400)
+    err = np.full(t.size, 1e-3)
+    y = 1 + 5e-3 * np.sin(2 * np.pi * t / 10.0) + err * rng.standard_normal(t.size)
+    lc = from_arrays(t, y, err, identifier="demo-daily")
+    for prepared in (prepare(lc), prepare(lc, min_period=0.5)):
+        res = scan(prepared)
+        assert res.candidates.periods().min() >= 2.0 * prepared.cadence * (1 - 1e-12)
+        assert prepared.cadence == pytest.approx(1.0, abs=0.02)
+        assert res.candidates.contains(10.0, rtol=5e-3)
 
 
 @pytest.mark.parametrize("seed", [1, 2, 3, 4, 5])
@@ -388,3 +406,11 @@ def test_two_dip_simulated_star_keeps_true_period(latitudes, areas, acf_finds_pe
     if acf_finds_period:
         assert res.acf.period == pytest.approx(period, rel=0.01)
         assert res.candidates.candidates[0].period == pytest.approx(period, rel=0.01)
+
+
+def test_default_toml_documents_every_periodogram_default():
+    # configs/default.toml must list each option with the value the code uses.
+    table = read_toml(Path(__file__).parents[1] / "configs" / "default.toml")["periodogram"]
+    assert set(table) == {f.name for f in dataclasses.fields(PeriodogramConfig)}
+    assert dataclass_from_mapping(PeriodogramConfig, table, section="periodogram") == \
+        PeriodogramConfig()
