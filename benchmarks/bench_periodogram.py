@@ -78,6 +78,7 @@ def main() -> None:
     parser.add_argument("--repeats", type=int, default=7)
     args = parser.parse_args()
 
+    load_before = os.getloadavg()[0]
     prepared = make_light_curve(SEED)
     scan(prepared)  # warm-up (imports, caches)
     both, both_all = _median_time(lambda: scan(prepared), args.repeats)
@@ -97,7 +98,9 @@ def main() -> None:
         f"Scanning one {len(prepared.lc):,}-point, {prepared.lc.baseline / 365.25:.2f}-year "
         f"light curve ({CADENCE * 1440:.1f}-min cadence, quarterly gaps, random dropouts; "
         f"injected period {PERIOD} d; search {MIN_PERIOD}–{MAX_PERIOD} d) with "
-        f"`rotinfer.periodogram.scan`. Target: under 2 s on one core.",
+        f"`rotinfer.periodogram.scan`. Target: under 2 s on one core. The light curve is "
+        "handed to the scan unbinned (in the pipeline, `prepare()` bins to at most "
+        "`max_points` points first, so this is the expensive case).",
         "",
         "| what | median (s) | runs |",
         "|---|---|---|",
@@ -116,7 +119,8 @@ def main() -> None:
         f"- Date: {datetime.datetime.now(datetime.UTC).strftime('%Y-%m-%d %H:%M UTC')}",
         f"- Machine: {_cpu()}, {os.cpu_count()} logical CPUs, {platform.system()} "
         f"{platform.release()}; OMP/OPENBLAS/MKL threads set to 1. The machine was shared "
-        "with other jobs while this ran, so times are indicative.",
+        f"with other jobs while this ran (1-minute load average {load_before:.1f} before and "
+        f"{os.getloadavg()[0]:.1f} after), so times are indicative.",
         f"- Versions: Python {platform.python_version()}, rotinfer {__version__}, numpy "
         f"{np.__version__}, scipy {scipy.__version__}, astropy {astropy.__version__}",
         f"- Seed: {SEED}",
