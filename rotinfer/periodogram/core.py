@@ -111,8 +111,9 @@ def scan(
     ----------
     prepared : PreparedLightCurve
         Cleaned light curve with its period range (days) and cadence (days).
-    methods : sequence of str
-        Any of :func:`available_methods` (``"lomb_scargle"``, ``"acf"``).
+    methods : sequence of str, or str
+        Any of :func:`available_methods` (``"lomb_scargle"``, ``"acf"``); a single name is
+        also accepted.
     config : PeriodogramConfig, optional
         Options; defaults documented in ``configs/default.toml``.
 
