@@ -61,10 +61,6 @@ def _make_cases(d: Path) -> dict[str, tuple[list[str], str]]:
     good = _good_fits(d / "good.fits")
     (d / "truncated.fits").write_bytes(good[: len(good) // 2])
     cases["truncated_fits"] = ([str(d / "truncated.fits")], "truncated FITS file")
-    corrupt = bytearray(good)
-    corrupt[2880:3280] = b"\x07" * 400  # the table's header overwritten
-    (d / "corrupt.fits").write_bytes(bytes(corrupt))
-    cases["corrupt_fits"] = ([str(d / "corrupt.fits")], "corrupt or unreadable FITS file")
     fits.PrimaryHDU(np.zeros((8, 8))).writeto(d / "image.fits")
     cases["fits_no_table"] = ([str(d / "image.fits")], "FITS file has no table extension")
     text("no_time.csv", "a,flux,err\n1,2,0.1\n2,3,0.1\n", "no time column (looked for time, t, "
@@ -78,14 +74,11 @@ def _make_cases(d: Path) -> dict[str, tuple[list[str], str]]:
     text("constant.csv", _rows(60, flux=np.full(60, 5.0)), "flux is constant (all 60 values "
          "equal 5)")
     text("few.csv", _rows(10), "too few points: 10 usable, at least 50 are needed")
-    text("short.csv", _rows(100, time=np.arange(100) * (0.5 / 1440)),
-         "is too short for the period range")
     text("short_request.csv", _rows(300, noise=True), "baseline 5.98 d is too short for "
          "max_period 30 d: at least 60 d of data are needed", "--max-period", "30")
-    text("negative_err.csv", _rows(60).replace(",0.001\n", ",-0.001\n", 1),
-         "1 uncertainty value(s) <= 0 in column 'flux_err' (first -0.001 at line 2)")
-    text("zero_err.csv", _rows(60).replace(",0.001\n", ",0.0\n", 3),
-         "3 uncertainty value(s) <= 0 in column 'flux_err'")
+    text("bad_err.csv", _rows(60).replace(",0.001\n", ",-0.001\n", 1).replace(
+        ",0.001\n", ",0.0\n", 2), "3 uncertainty value(s) <= 0 in column 'flux_err' (first "
+        "-0.001 at line 2)")
     text("infinite.csv", "time,flux\n0,1\n1,inf\n2,1.2\n",
          "1 infinite value(s) in column 'flux' (first at line 3)")
     (d / "folder").mkdir()
@@ -117,12 +110,12 @@ def outcomes(tmp_path_factory):
         (d / "locked.csv").chmod(0o600)
 
 
-# The list of bad inputs (permissions: see test_unreadable_file).
+# The list of bad inputs, one subprocess each (permissions: see
+# test_unreadable_file; more variants run in process below).
 CASES = [
-    "missing", "empty", "header_only.csv", "garbage", "truncated_fits", "corrupt_fits",
-    "fits_no_table", "no_time.csv", "no_flux.csv", "non_numeric.csv", "all_nan.csv",
-    "constant.csv", "few.csv", "short.csv", "short_request.csv", "negative_err.csv",
-    "zero_err.csv", "infinite.csv", "directory",
+    "missing", "empty", "header_only.csv", "garbage", "truncated_fits", "fits_no_table",
+    "no_time.csv", "no_flux.csv", "non_numeric.csv", "all_nan.csv", "constant.csv",
+    "few.csv", "short_request.csv", "bad_err.csv", "infinite.csv", "directory",
 ]
 
 
@@ -192,14 +185,26 @@ def test_option_problems_are_one_line(tmp_path, capsys):
     assert code == 2 and len(err.splitlines()) == 1 and "--max-period" in err
 
 
-def test_truncated_inside_a_header(tmp_path, capsys):
+def test_more_file_problems_in_process(tmp_path, capsys):
     good = _good_fits(tmp_path / "good.fits")
-    path = tmp_path / "cut.fits"
-    path.write_bytes(good[:4000])
-    code, _, err = _main(capsys, path)
-    assert code == 2 and len(err.splitlines()) == 1
-    assert f"{path}: truncated or corrupt FITS file (4000 bytes is not a whole number of " \
-           "2880-byte FITS blocks)" in err
+    cut = tmp_path / "cut.fits"
+    cut.write_bytes(good[:4000])  # ends inside the table's header
+    corrupt = bytearray(good)
+    corrupt[2880:3280] = b"\x07" * 400  # the table's header overwritten
+    (tmp_path / "corrupt.fits").write_bytes(bytes(corrupt))
+    short = tmp_path / "short.csv"  # 50 minutes of 30-s data: shorter than 2 x 0.1 d
+    short.write_text(_rows(100, time=np.arange(100) * (0.5 / 1440), noise=True))
+    expected = {
+        cut: "truncated or corrupt FITS file (4000 bytes is not a whole number of 2880-byte "
+             "FITS blocks)",
+        tmp_path / "corrupt.fits": "corrupt or unreadable FITS file",
+        short: "baseline 0.03438 d is too short for the period range: the shortest usable "
+               "min_period 0.1 d needs at least 0.2 d of data",
+    }
+    for path, fragment in expected.items():
+        code, out, err = _main(capsys, path)
+        assert code == 2 and out == "" and len(err.splitlines()) == 1, err
+        assert f"{path}: {fragment}" in err, err
 
 
 def test_stitched_error_names_the_right_file(tmp_path, capsys):

@@ -1,159 +1,22 @@
-"""Preparation: from a light curve as read to one ready for period search and inference.
-
-Steps, in order (each recorded in :attr:`PreparedLightCurve.notes`, each removed point in
-:attr:`PreparedLightCurve.masked` with its reason):
-
-1. refuse infinite values and uncertainties <= 0; drop rows with NaN (``"non-finite"``);
-2. sort by time;
-3. split into segments at file boundaries and at gaps longer than
-   ``max(gap_factor x cadence, gap_min)``;
-4. normalise each segment by its median (relative flux), so that offsets between sectors
-   or seasons cannot fake a long-period signal;
-5. merge exactly duplicated timestamps (weighted mean; identical copies kept once);
-6. reject flares and outliers asymmetrically against a running median (see
-   :func:`reject_flares`);
-7. give every point an uncertainty: the input's, or where there was none a robust
-   point-to-point scatter per segment (``meta.has_flux_err`` stays False);
-8. choose the period range from the data (or take the one given);
-9. optionally remove slow trends per segment (off by default);
-10. bin only when more than ``max_points`` points remain, never wider than
-    ``bin_fraction x min_period``.
-
-Amplitudes and scatter are shown to users in parts per thousand (ppt).
-"""
+"""The preparation pipeline itself: :func:`prepare` and its steps."""
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import replace
 
 import numpy as np
 
-from .errors import ConfigError, InputError
-from .lightcurve import LightCurve, MaskRecord, PreparedLightCurve
+from ..errors import InputError
+from ..lightcurve import LightCurve, MaskRecord, PreparedLightCurve
+from ._binning import bin_light_curve, weighted_groups
+from ._config import PrepareConfig, check_period
+from ._flares import reject_flares, robust_sigma
 
-__all__ = ["PrepareConfig", "bin_light_curve", "prepare", "reject_flares"]
+__all__ = ["prepare"]
 
-# 1.4826 x MAD estimates the standard deviation of a normal distribution (common practice).
-_MAD_TO_SIGMA = 1.4826
-# The smoothing window never spans fewer points than this.
-_MIN_WINDOW_POINTS = 7
 # Largest relative flux or uncertainty accepted after normalisation by the median.
 _MAX_RELATIVE = 1e6
-# Smallest robust sigma used for clipping (relative flux): 10 ppm, below the per-point
-# noise of real photometry; keeps noise-free (simulated) light curves from being clipped
-# on the smoother's rounding and edge errors.
-_SIGMA_FLOOR = 1e-5
-
-
-@dataclass(frozen=True)
-class PrepareConfig:
-    """Options of the preparation stage (the ``[prepare]`` table of a configuration file).
-
-    Attributes
-    ----------
-    min_points : int
-        Fewest usable points (after cleaning) accepted; fewer is an input error. 50 gives
-        roughly ten points per parameter of the rotation model.
-    gap_factor : float
-        A gap splits a segment when longer than ``gap_factor`` times the cadence (median
-        spacing, days) ...
-    gap_min : float
-        ... and longer than ``gap_min`` days. The floor keeps nightly or orbit gaps from
-        cutting a light curve into pieces that per-segment normalisation would flatten.
-    reject_flares : bool
-        Mask flares and outliers (steps 6). Default true.
-    clip_high : float
-        Upward threshold in robust standard deviations (1.4826 MAD) of the residual from
-        the running median. Flares are upward, so this side is clipped harder.
-    clip_low : float
-        Downward threshold, gentler (larger) than ``clip_high``.
-    clip_iterations : int
-        Most passes of the clip-and-recompute loop (it stops early when nothing changes).
-    smooth_window : float
-        Width of the running median in days (never fewer than 7 points): several times a
-        long flare (FWHM of minutes to an hour) and short against most rotation periods.
-    tail_factor : float
-        A flagged run of ``n`` points is extended over the flare's decay by
-        ``ceil(tail_factor * n)`` following points ...
-    tail_sigma : float
-        ... and further while the residual stays above ``tail_sigma`` robust sigma (at most
-        four times that length again). The Davenport et al. (2014) template decays slowly.
-    detrend : bool
-        Remove slow trends per segment (off by default; reported when on).
-    detrend_scale : float
-        Only timescales longer than ``detrend_scale x max_period`` are removed: a Legendre
-        polynomial of degree ``floor(2 span / (detrend_scale x max_period))`` per segment.
-    max_points : int
-        Target for the number of points the Gaussian process sees; binning happens only
-        when more remain.
-    bin_fraction : float
-        The widest allowed bin, as a fraction of ``min_period``. Averaging a sinusoid of
-        period P over a bin of width w keeps ``sinc(w/P)`` of its amplitude: 98.4 % at 0.1.
-    min_period_cadences : float
-        Default shortest period: this many cadences (3: daily sampling gives 3 d) ...
-    min_period_floor : float
-        ... and at least this many days (0.1 d, about the fastest rotators known).
-    max_period_fraction : float
-        Longest period, as a fraction of the baseline (0.5: at least two cycles observed).
-        A requested ``max_period`` longer than this fraction of the baseline is an error.
-    min_period, max_period : float or None
-        Period range in days; None (default) takes it from the data as above.
-    """
-
-    min_points: int = 50
-    gap_factor: float = 20.0
-    gap_min: float = 10.0
-    reject_flares: bool = True
-    clip_high: float = 3.0
-    clip_low: float = 5.0
-    clip_iterations: int = 5
-    smooth_window: float = 0.25
-    tail_factor: float = 1.0
-    tail_sigma: float = 1.0
-    detrend: bool = False
-    detrend_scale: float = 3.0
-    max_points: int = 5000
-    bin_fraction: float = 0.1
-    min_period_cadences: float = 3.0
-    min_period_floor: float = 0.1
-    max_period_fraction: float = 0.5
-    min_period: float | None = None
-    max_period: float | None = None
-
-    def __post_init__(self):
-        positive = ("gap_factor", "clip_high", "clip_low", "smooth_window", "detrend_scale",
-                    "bin_fraction", "min_period_cadences", "min_period_floor",
-                    "max_period_fraction")
-        for name in positive:
-            value = getattr(self, name)
-            if not (isinstance(value, int | float) and math.isfinite(value) and value > 0):
-                raise ConfigError(f"[prepare] {name} must be a positive number, got {value!r}")
-        for name in ("gap_min", "tail_factor", "tail_sigma"):
-            value = getattr(self, name)
-            if not (isinstance(value, int | float) and math.isfinite(value) and value >= 0):
-                raise ConfigError(f"[prepare] {name} must be zero or positive, got {value!r}")
-        for name, low in (("min_points", 3), ("clip_iterations", 1), ("max_points", 10)):
-            value = getattr(self, name)
-            if isinstance(value, bool) or not isinstance(value, int) or value < low:
-                raise ConfigError(f"[prepare] {name} must be an integer >= {low}, got {value!r}")
-        if self.bin_fraction > 0.5:
-            raise ConfigError(f"[prepare] bin_fraction must be at most 0.5 (bins must stay well "
-                              f"below the shortest period), got {self.bin_fraction!r}")
-        if self.max_period_fraction > 1:
-            raise ConfigError("[prepare] max_period_fraction must be at most 1, got "
-                              f"{self.max_period_fraction!r}")
-        _check_period("min_period", self.min_period)
-        _check_period("max_period", self.max_period)
-
-
-def _check_period(name: str, value) -> None:
-    if value is None:
-        return
-    if isinstance(value, bool) or not isinstance(value, int | float) or not (
-        math.isfinite(value) and value > 0
-    ):
-        raise ConfigError(f"{name} must be a positive number of days, got {value!r}")
 
 
 def _source(lc: LightCurve, segment: int | None = None) -> str:
@@ -166,203 +29,12 @@ def _source(lc: LightCurve, segment: int | None = None) -> str:
     return ", ".join(sources)
 
 
-def _robust_sigma(x: np.ndarray) -> float:
-    if x.size == 0:
-        return 0.0
-    return _MAD_TO_SIGMA * float(np.median(np.abs(x - np.median(x))))
-
-
 def _cadence(time: np.ndarray, segment: np.ndarray) -> float:
     """Median positive spacing of consecutive points within segments (days)."""
     same = segment[1:] == segment[:-1]
     steps = np.diff(time)[same]
     steps = steps[steps > 0]
     return float(np.median(steps)) if steps.size else 0.0
-
-
-def _weighted_groups(groups, flux, err, time):
-    """Weighted mean flux and time and the error of the mean, per group id (0..k-1).
-
-    Weights are 1/err^2 scaled by each group's smallest error so that extreme values
-    cannot overflow; the error of the weighted mean is 1/sqrt(sum of 1/err^2) (analytic).
-    """
-    k = int(groups.max()) + 1
-    emin = np.full(k, np.inf)
-    np.minimum.at(emin, groups, err)
-    w = (emin[groups] / err) ** 2
-    wsum = np.bincount(groups, w, minlength=k)
-    mean_f = np.bincount(groups, w * flux, minlength=k) / wsum
-    # Times: mean offset from each group's first time, so large epochs keep their precision.
-    first = np.full(k, np.inf)
-    np.minimum.at(first, groups, time)
-    mean_t = first + np.bincount(groups, w * (time - first[groups]), minlength=k) / wsum
-    return mean_t, mean_f, emin / np.sqrt(wsum)
-
-
-def bin_light_curve(time, flux, err, segment, width: float, *, count=None):
-    """Bin points into bins of ``width`` days within each segment (never across segments).
-
-    Parameters
-    ----------
-    time, flux, err : ndarray of float, shape (n,)
-        Times (days, sorted), relative flux and its one-sigma uncertainties (> 0).
-    segment : ndarray of int, shape (n,)
-        Segment index per point.
-    width : float
-        Bin width in days; bins start at each segment's first point.
-    count : ndarray of int, shape (n,), optional
-        Measurements behind each point (1 by default).
-
-    Returns
-    -------
-    time, flux, err, segment, count : ndarrays, shape (m,)
-        Weighted-mean time and flux per bin, the error of the weighted mean
-        ``1 / sqrt(sum 1/err_i^2)`` (``err/sqrt(n)`` for n equal errors), the segment and
-        the number of measurements per bin; sorted by time.
-    """
-    time = np.asarray(time, dtype=np.float64)
-    count = np.ones(time.size, dtype=np.int64) if count is None else np.asarray(count)
-    if time.size == 0:
-        return time, np.asarray(flux), np.asarray(err), np.asarray(segment), count
-    seg_ids, seg_index = np.unique(segment, return_inverse=True)
-    start = np.full(seg_ids.size, np.inf)
-    np.minimum.at(start, seg_index, time)
-    index = np.floor((time - start[seg_index]) / width).astype(np.int64)
-    keys = np.stack([seg_index, index])
-    _, groups = np.unique(keys, axis=1, return_inverse=True)
-    groups = groups.ravel()
-    t, f, e = _weighted_groups(groups, np.asarray(flux, float), np.asarray(err, float), time)
-    k = t.size
-    seg_out = np.zeros(k, dtype=np.int64)
-    seg_out[groups] = np.asarray(segment)[np.arange(time.size)]
-    n_out = np.bincount(groups, count, minlength=k).astype(np.int64)
-    order = np.argsort(t, kind="stable")
-    return t[order], f[order], e[order], seg_out[order], n_out[order]
-
-
-def _smooth_without_self(time, flux, good, points, cadence):
-    """Local-polynomial estimate of each point from its neighbours, and the residual.
-
-    A Savitzky-Golay filter (least-squares polynomial over ``points`` consecutive points:
-    quartic for 15 or more points, else quadratic) through the series in which flagged
-    points are replaced by linear interpolation between good ones. Each point is left out
-    of its own fit by the leave-one-out identity of linear smoothers,
-    ``r_loo = r / (1 - h)`` with ``h`` the filter's central weight, so a flare cannot pull
-    sigma. Unlike a running median, a local polynomial follows the curvature of a
-    large-amplitude rotation signal (a running median over a quarter period is biased by
-    about 8 % of the amplitude at the extrema; a quartic by less than 1e-5 of it).
-    The series is split at gaps longer than half a window so no fit bridges a gap.
-
-    Returns
-    -------
-    ndarray
-        Leave-one-out residual ``flux - estimate`` per point.
-
-    References
-    ----------
-    Savitzky, A. & Golay, M. J. E. 1964, Anal. Chem. 36, 1627 (local polynomial smoothing).
-    """
-    from scipy.signal import savgol_filter  # slow to import, rarely needed
-
-    filled = flux.copy()
-    if not good.all():
-        filled[~good] = np.interp(time[~good], time[good], flux[good])
-    resid = np.zeros_like(flux)
-    gap = max(3.0 * cadence, 0.5 * points * cadence)
-    cuts = np.flatnonzero(np.diff(time) > gap) + 1
-    for chunk in np.split(np.arange(flux.size), cuts):
-        size = min(points, chunk.size if chunk.size % 2 else chunk.size - 1)
-        if size < 5:
-            resid[chunk] = filled[chunk] - np.median(filled[chunk])
-            continue
-        order = 4 if size >= 21 else 2
-        fit = savgol_filter(filled[chunk], size, order, mode="interp")
-        resid[chunk] = (flux[chunk] - fit) / (1.0 - _leverage(chunk.size, size, order))
-    return resid
-
-
-def _leverage(n: int, size: int, order: int) -> np.ndarray:
-    """Weight of each point in its own Savitzky-Golay value (the hat-matrix diagonal).
-
-    Interior points use the central coefficient; the first and last ``size // 2`` points
-    are values of one polynomial fitted to the first (last) ``size`` points.
-    """
-    from scipy.signal import savgol_coeffs
-
-    half = size // 2
-    h = np.full(n, savgol_coeffs(size, order)[half])
-    edge = np.array([savgol_coeffs(size, order, pos=i, use="dot")[i] for i in range(half)])
-    h[:half] = edge
-    h[n - half:] = edge[::-1]
-    return h
-
-
-def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
-    """(start, stop) index pairs of runs of True, stop exclusive."""
-    padded = np.concatenate([[False], mask, [False]])
-    edges = np.flatnonzero(np.diff(padded.astype(np.int8)))
-    return list(zip(edges[::2].tolist(), edges[1::2].tolist(), strict=True))
-
-
-def reject_flares(time, flux, cadence: float, config: PrepareConfig | None = None):
-    """Flag flares and outliers in one segment, asymmetrically.
-
-    Iterates: a running median (``smooth_window`` days, at least 7 points, each point left
-    out of its own window) through the points not flagged, the robust scatter (1.4826 MAD)
-    of the residuals, then flags points above ``clip_high`` sigma (flares are brief upward
-    excursions) and below ``clip_low`` sigma (gentler). Each upward run is extended over
-    the flare's slow decay (``tail_factor``, ``tail_sigma``). Stops when the flags no longer
-    change.
-
-    Parameters
-    ----------
-    time, flux : ndarray of float, shape (n,)
-        Sorted times (days) and relative flux of one segment.
-    cadence : float
-        Typical spacing in days (sets the window length in points).
-    config : PrepareConfig, optional
-
-    Returns
-    -------
-    ndarray of str, shape (n,)
-        ``""`` for kept points, else ``"flare"`` (runs of two or more points),
-        ``"outlier-high"`` (single points), ``"flare-tail"`` or ``"outlier-low"``.
-
-    References
-    ----------
-    Davenport, J. R. A., et al. 2014, ApJ, 797, 122 (fast rise, slow two-exponential decay
-    of white-light flares, which motivates the one-sided clip and the tail extension).
-    """
-    cfg = config or PrepareConfig()
-    n = time.size
-    reasons = np.full(n, "", dtype="<U12")
-    if n < _MIN_WINDOW_POINTS:
-        return reasons
-    points = int(round(cfg.smooth_window / cadence)) if cadence > 0 else _MIN_WINDOW_POINTS
-    points = max(_MIN_WINDOW_POINTS, min(points, n)) | 1
-    for _ in range(cfg.clip_iterations):
-        good = reasons == ""
-        if good.sum() < _MIN_WINDOW_POINTS:
-            break
-        resid = _smooth_without_self(time, flux, good, points, cadence)
-        sigma = max(_robust_sigma(resid[good]), _SIGMA_FLOOR)
-        new = np.full(n, "", dtype="<U12")
-        high = resid > cfg.clip_high * sigma
-        for a, b in _runs(high):
-            new[a:b] = "flare" if b - a >= 2 else "outlier-high"
-            fixed = math.ceil(cfg.tail_factor * (b - a))
-            j = b
-            while j < n and high[j] == 0 and (
-                j < b + fixed or (resid[j] > cfg.tail_sigma * sigma and j < b + 5 * fixed)
-            ):
-                new[j] = "flare-tail"
-                j += 1
-        low = (resid < -cfg.clip_low * sigma) & (new == "")
-        new[low] = "outlier-low"
-        if np.array_equal(new, reasons):
-            break
-        reasons = new
-    return reasons
 
 
 def _normalise(flux, err, segment, lc):
@@ -419,12 +91,12 @@ def _detrend(time, flux, err, segment, max_period, scale):
 def _scatter_errors(flux, segment, count):
     """Per-segment point-to-point scatter: 1.4826 MAD(diff)/sqrt(2), over sqrt(count)."""
     err = np.empty(flux.size)
-    global_sigma = _robust_sigma(np.diff(flux)) / math.sqrt(2.0) if flux.size > 2 else 0.0
+    global_sigma = robust_sigma(np.diff(flux)) / math.sqrt(2.0) if flux.size > 2 else 0.0
     if not global_sigma > 0:
         global_sigma = float(np.std(flux)) or 1.0
     for s in np.unique(segment):
         sel = segment == s
-        sigma = _robust_sigma(np.diff(flux[sel])) / math.sqrt(2.0) if sel.sum() > 4 else 0.0
+        sigma = robust_sigma(np.diff(flux[sel])) / math.sqrt(2.0) if sel.sum() > 4 else 0.0
         err[sel] = sigma if sigma > 0 else global_sigma
     return err / np.sqrt(count)
 
@@ -480,7 +152,7 @@ def _merge_duplicates(time, flux, err, segment, masks):
     first = np.flatnonzero(starts)
     size = np.diff(np.append(first, n))
     e = err if err is not None else np.ones(n)
-    _, mean_f, mean_e = _weighted_groups(groups, flux, e, time)
+    _, mean_f, mean_e = weighted_groups(groups, flux, e, time)
     same = (np.maximum.reduceat(flux, first) == np.minimum.reduceat(flux, first)) & (
         np.maximum.reduceat(e, first) == np.minimum.reduceat(e, first)
     )
@@ -515,8 +187,8 @@ def _period_range(cfg, lc, baseline, cadence, min_period, max_period, notes):
     auto_max = frac * baseline
     lo = min_period if min_period is not None else cfg.min_period
     hi = max_period if max_period is not None else cfg.max_period
-    _check_period("min_period", lo)
-    _check_period("max_period", hi)
+    check_period("min_period", lo)
+    check_period("max_period", hi)
     if hi is not None and hi > auto_max:
         raise InputError(
             src, f"baseline {baseline:.4g} d is too short for max_period {hi:.4g} d: at least "
