@@ -10,6 +10,8 @@ Exit codes (documented in the README):
 
 from __future__ import annotations
 
+import importlib
+import importlib.util
 import logging
 import sys
 import traceback
@@ -46,7 +48,47 @@ class Settings:
             click.echo(message)
 
 
-@click.group(context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100})
+# Subcommands: name -> (module, one-line help). Modules are imported only when their command
+# runs, so ``rotinfer --help`` and input errors answer in well under a second instead of
+# paying for SciPy, matplotlib and celerite2 imports (each module registers on ``cli``).
+COMMANDS: dict[str, tuple[str, str]] = {
+    "demo": ("rotinfer.cli.demo", "Run the whole pipeline on an invented demo star."),
+    "fit": ("rotinfer.cli.fit", "Infer rotation periods with the Gaussian-process model."),
+    "report": ("rotinfer.cli.report", "Build the HTML pages for a results folder."),
+    "scan": ("rotinfer.cli.scan", "Lomb-Scargle and autocorrelation periods per star."),
+    "simulate": ("rotinfer.cli.simulate", "Simulate spotted, flaring stars with known truth."),
+    "survey": ("rotinfer.cli.survey", "Analyse many stars, resumable, locally or on Dask."),
+}
+
+
+class _LazyGroup(click.Group):
+    """A click group that imports a subcommand's module only when it is used."""
+
+    def list_commands(self, ctx):
+        return sorted(set(super().list_commands(ctx)) | {
+            n for n, (mod, _) in COMMANDS.items() if importlib.util.find_spec(mod) is not None
+        })
+
+    def get_command(self, ctx, cmd_name):
+        if cmd_name not in self.commands and cmd_name in COMMANDS:
+            module = COMMANDS[cmd_name][0]
+            if importlib.util.find_spec(module) is not None:
+                importlib.import_module(module)
+        return self.commands.get(cmd_name)
+
+    def format_commands(self, ctx, formatter):
+        rows = [(name, COMMANDS[name][1] if name in COMMANDS and name not in self.commands
+                 else self.commands[name].get_short_help_str(80))
+                for name in self.list_commands(ctx)]
+        if rows:
+            with formatter.section("Commands"):
+                formatter.write_dl(rows)
+
+
+@click.group(
+    cls=_LazyGroup,
+    context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100},
+)
 @click.option("-q", "--quiet", is_flag=True, help="Print nothing but errors.")
 @click.option("-v", "--verbose", count=True, help="More detail (repeat for debug output).")
 @click.version_option(__version__, "--version", prog_name="rotinfer")

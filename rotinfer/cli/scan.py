@@ -14,13 +14,9 @@ from pathlib import Path
 
 import click
 import numpy as np
-from matplotlib.figure import Figure
 
 from ..config import dataclass_from_mapping, read_toml
-from ..figures import plot_scan
 from ..io import read_stars
-from ..periodogram import PeriodogramConfig, available_methods
-from ..periodogram import scan as scan_periods
 from ..prepare import PrepareConfig, prepare
 from ._app import cli
 from ._inputs import input_options, period_kwargs, period_options, reader_kwargs
@@ -39,8 +35,9 @@ JSON_UNITS = {"period": "d", "uncertainty": "d", "lag": "d", "frequency": "1/d",
 @click.argument("files", nargs=-1, required=True, type=click.Path(dir_okay=True))
 @input_options
 @period_options
-@click.option("--method", "methods", multiple=True, type=click.Choice(available_methods()),
-              help="Period search to run (repeat for several; default: all of them).")
+@click.option("--method", "methods", multiple=True, metavar="NAME",
+              help="Period search to run: lomb_scargle or acf (repeat for several; default: "
+                   "all of them).")
 @click.option("--config", "config_path", type=click.Path(dir_okay=False), metavar="FILE",
               help="TOML file with [prepare] and [periodogram] tables (defaults: "
                    "configs/default.toml).")
@@ -63,11 +60,17 @@ def scan(settings, files, methods, config_path, as_json, plot_path, **opts):
         _check_plot_path(Path(plot_path))
     table = read_toml(config_path) if config_path else {}
     prep_cfg = dataclass_from_mapping(PrepareConfig, table.get("prepare"), section="prepare")
+    stars = read_stars(files, **reader_kwargs(opts))
+
+    # The period searches pull in SciPy's signal and stats modules; import them only once the
+    # inputs are known to be readable, so bad input is reported at once.
+    from ..figures import plot_scan
+    from ..periodogram import PeriodogramConfig, available_methods
+    from ..periodogram import scan as scan_periods
+
     scan_cfg = dataclass_from_mapping(PeriodogramConfig, table.get("periodogram"),
                                       section="periodogram")
     methods = tuple(methods) or available_methods()
-
-    stars = read_stars(files, **reader_kwargs(opts))
     records = []
     for lc in stars:
         prep = prepare(lc, prep_cfg, **period_kwargs(opts))
@@ -94,6 +97,8 @@ def _check_plot_path(path: Path) -> None:
     if not path.parent.is_dir():
         raise click.BadParameter(f"folder {str(path.parent)!r} does not exist",
                                  param_hint="'--plot'")
+    from matplotlib.figure import Figure
+
     formats = Figure().canvas.get_supported_filetypes()
     suffix = path.suffix.lstrip(".").lower()
     if suffix not in formats:
