@@ -55,7 +55,7 @@ def summarise(task, *, config, seed, out_dir) -> None:
     q = np.percentile(draws, [2.5, 16, 50, 84, 97.5])
     summary = {
         "period": {"median": q[2], "interval_68": [q[1], q[3]], "interval_95": [q[0], q[4]]},
-        "amplitude": {"median": float(np.ptp(flux)) * 1e3 / 2},
+        "amplitude_ppt": {"median": float(np.ptp(flux)) * 1e3 / 2},
         "detected": bool(q[2] > 15),
         "converged": True,
         "baselines": {"lomb_scargle": {"period": q[2] * 0.99}, "acf": {"period": None}},

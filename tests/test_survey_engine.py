@@ -47,6 +47,9 @@ def test_catalogue_has_one_row_per_star_with_units_and_provenance(lcs, tmp_path)
         summary = json.loads((tmp_path / "o" / row["folder"] / "summary.json").read_text())
         assert row["period"] == summary["period"]["median"]
         assert row["period_hi95"] == summary["period"]["interval_95"][1]
+        assert row["amplitude"] == summary["amplitude_ppt"]["median"]
+    # ppt has no astropy unit name: written as the scaled dimensionless unit 0.001.
+    assert t["amplitude"].unit.to("") == 1e-3
     # The survey's vetting page (rotinfer.report) links every analysed star.
     page = (tmp_path / "o" / "stars" / "vetting.html").read_text()
     assert all(f"{n}/index.html" in page for n in NAMES)
