@@ -75,6 +75,7 @@ from dataclasses import dataclass, field, replace
 import celerite2
 import numpy as np
 from celerite2 import terms
+from celerite2.driver import LinAlgError as CeleriteLinAlgError
 from scipy import special
 
 from .errors import ConfigError, InputError
@@ -492,19 +493,19 @@ class RotationModel:
 
         celerite2 does not validate parameters and, with ``quiet=True``, a
         failed factorisation gives ``-inf`` or NaN rather than an error; both
-        are mapped to ``-inf`` here.
+        are mapped to ``-inf`` here, as is a failed factorisation.
         """
         try:
             with np.errstate(all="ignore"):
                 p = self.unpack(theta)
                 gp = celerite2.GaussianProcess(self._kernel(p), mean=p["mean"])
-                gp.compute(
-                    self.time, diag=self._var + p["jitter"] ** 2, check_sorted=False, quiet=True
-                )
+                gp.compute(self.time, diag=self._var + p["jitter"] ** 2, check_sorted=False)
                 value = gp.log_likelihood(self.flux)
-        except (ValueError, ArithmeticError, np.linalg.LinAlgError):
+        except (ValueError, ArithmeticError, CeleriteLinAlgError):
             # ValueError: celerite2's own checks; ArithmeticError: float overflow while
-            # mapping parameters; LinAlgError: a failed factorisation that was not quiet.
+            # mapping parameters; LinAlgError: a failed factorisation. (With quiet=True
+            # celerite2 0.3 leaves the solver half-built and log_likelihood then fails
+            # with AttributeError, so the error is caught here instead.)
             return -math.inf
         value = float(value)
         return value if math.isfinite(value) else -math.inf

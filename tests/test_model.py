@@ -123,6 +123,24 @@ def test_non_finite_likelihood_is_minus_inf(rng):
         assert isinstance(value, float) and value == -math.inf
 
 
+def test_failed_factorisation_is_minus_inf():
+    # Repeated times with no white noise make the covariance singular: celerite2 cannot
+    # factorise it (shown directly first), and the model must return -inf, not raise.
+    import celerite2
+    from celerite2.driver import LinAlgError
+
+    t = np.repeat(np.linspace(0.0, 20.0, 50), 2)
+    model = RotationModel(t, np.ones(t.size), np.zeros(t.size), period_range=(0.5, 10.0))
+    theta = model.pack(period=3.0, sigma=1.0, coherence_rotations=5.0, f=0.5, r=0.5,
+                       background_sigma=1e-3, background_tau=1.0, jitter=1.0, mean=1.0)
+    theta[model.names.index("log_jitter")] = -800.0  # jitter underflows to exactly 0
+    gp = celerite2.GaussianProcess(model.kernel(theta), mean=1.0)
+    with pytest.raises(LinAlgError):
+        gp.compute(t, diag=np.zeros(t.size))
+    assert model.log_likelihood(theta) == -math.inf
+    assert model(theta) == -math.inf
+
+
 def test_restricted_basin(rng):
     model = _toy_model(rng)
     theta = model.sample_prior(rng, 1)[0]

@@ -1,0 +1,277 @@
+"""Convergence diagnostics for ensembles of walkers.
+
+How the chains are formed
+-------------------------
+Walkers of one affine-invariant ensemble are not independent (each move uses
+the others), so R-hat is never computed across walkers of one ensemble. Each
+*independent ensemble* is one chain: its draw sequence is the ensemble's
+positions step after step (walker positions of step t, then of step t + 1, ...).
+Split R-hat then splits every such chain into its first and second half (in
+steps), so K ensembles give 2K chains. With a single ensemble only the split
+halves are compared, which checks stationarity but not mixing between
+independent starts; the default is two ensembles.
+
+The integrated autocorrelation time tau is emcee's estimator
+(:func:`emcee.autocorr.integrated_time`, Goodman & Weare 2010 / Sokal's
+automatic window with c = 5), which averages the autocorrelation function over
+the walkers of one ensemble; the effective sample size of an ensemble is
+``n_steps * n_walkers / tau`` and is summed over ensembles.
+
+References
+----------
+Vehtari, A., Gelman, A., Simpson, D., Carpenter, B. & Bürkner, P.-C. 2021,
+Bayesian Analysis 16, 667 (rank-normalised split R-hat, folded R-hat; R-hat < 1.01).
+Goodman, J. & Weare, J. 2010, CAMCoS 5, 65; emcee documentation "Autocorrelation
+analysis & convergence" (trust tau only for chains longer than ~50 tau).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from emcee.autocorr import integrated_time
+from scipy import special, stats
+
+__all__ = [
+    "EnsembleDiagnostics",
+    "autocorr_time",
+    "burn_in",
+    "rank_normalised_split_rhat",
+    "stuck_walkers",
+]
+
+
+def _rhat_classic(chains: np.ndarray) -> float:
+    """Gelman-Rubin potential scale reduction of equal-length chains, shape (m, n)."""
+    m, n = chains.shape
+    means = chains.mean(axis=1)
+    within = chains.var(axis=1, ddof=1).mean()
+    between_over_n = means.var(ddof=1)
+    if not within > 0:
+        return math.nan
+    var_plus = (n - 1) / n * within + between_over_n
+    return float(math.sqrt(var_plus / within))
+
+
+def _rank_normalise(chains: np.ndarray) -> np.ndarray:
+    """Normal scores of the pooled ranks (Blom offset 3/8), Vehtari et al. 2021 eq. 14."""
+    flat = chains.ravel()
+    ranks = stats.rankdata(flat, method="average")
+    z = special.ndtri((ranks - 0.375) / (flat.size + 0.25))
+    return z.reshape(chains.shape)
+
+
+def rank_normalised_split_rhat(chains) -> float:
+    """Rank-normalised split R-hat (the maximum of the bulk and the folded versions).
+
+    Parameters
+    ----------
+    chains : array_like, shape (m, n)
+        m independent chains of n draws of one scalar quantity (see the module
+        notes for how ensembles become chains). Each chain is split in half
+        here; an odd last draw is dropped.
+
+    Returns
+    -------
+    float
+        R-hat; values below 1.01 indicate agreement (Vehtari et al. 2021).
+        NaN when a chain is constant.
+
+    References
+    ----------
+    Vehtari et al. 2021, Bayesian Analysis 16, 667, section 4.
+    """
+    x = np.asarray(chains, dtype=float)
+    if x.ndim != 2 or x.shape[1] < 4:
+        raise ValueError("chains must have shape (m, n) with n >= 4")
+    half = x.shape[1] // 2
+    split = np.concatenate([x[:, :half], x[:, half : 2 * half]], axis=0)
+    bulk = _rhat_classic(_rank_normalise(split))
+    folded = np.abs(split - np.median(split))
+    tail = _rhat_classic(_rank_normalise(folded))
+    return float(max(bulk, tail))
+
+
+def autocorr_time(chain: np.ndarray) -> np.ndarray:
+    """Integrated autocorrelation time (in steps) per parameter of one ensemble.
+
+    Parameters
+    ----------
+    chain : ndarray, shape (n_steps, n_walkers, ndim)
+
+    Notes
+    -----
+    Uses :func:`emcee.autocorr.integrated_time` with ``tol=0`` so that it never
+    raises; whether the chain is long enough is judged separately.
+    """
+    return np.asarray(integrated_time(chain, c=5, tol=0, quiet=True), dtype=float)
+
+
+def burn_in(chain: np.ndarray, burn_in_tau: float) -> int:
+    """Steps to discard: ``burn_in_tau`` times the largest tau of the whole chain, at most half."""
+    n = chain.shape[0]
+    if n < 8:
+        return n // 2
+    tau = autocorr_time(chain)
+    return int(min(n // 2, math.ceil(burn_in_tau * float(np.nanmax(tau)))))
+
+
+def stuck_walkers(acceptance: np.ndarray, ratio: float) -> np.ndarray:
+    """Indices of walkers whose acceptance fraction is below ``ratio`` x the ensemble median."""
+    acceptance = np.asarray(acceptance, dtype=float)
+    med = float(np.median(acceptance))
+    return np.flatnonzero(acceptance < ratio * med)
+
+
+@dataclass(frozen=True)
+class EnsembleDiagnostics:
+    """Convergence diagnostics of a set of independent ensembles sampling one target.
+
+    Attributes
+    ----------
+    names : tuple of str
+        Parameter names (unconstrained space).
+    n_steps : int
+        Steps per ensemble (each ensemble has the same number).
+    burn_in : tuple of int
+        Steps discarded per ensemble.
+    tau : ndarray, shape (n_ensembles, ndim)
+        Integrated autocorrelation time per ensemble and parameter (steps).
+    tau_previous : ndarray, shape (n_ensembles, ndim)
+        The same, estimated one check earlier (NaN at the first check).
+    n_tau : ndarray, shape (ndim,)
+        Post-burn-in length in units of tau (the worst ensemble).
+    ess : ndarray, shape (ndim,)
+        Effective sample size, summed over ensembles.
+    rhat : ndarray, shape (ndim,)
+        Rank-normalised split R-hat across ensembles.
+    acceptance : ndarray, shape (n_ensembles, n_walkers)
+        Acceptance fraction per walker.
+    stuck : int
+        Number of stuck walkers in all ensembles.
+    converged : bool
+        The verdict of :meth:`judge`.
+    reasons : tuple of str
+        Why not converged (empty when converged).
+    """
+
+    names: tuple[str, ...]
+    n_steps: int
+    burn_in: tuple[int, ...]
+    tau: np.ndarray
+    tau_previous: np.ndarray
+    n_tau: np.ndarray
+    ess: np.ndarray
+    rhat: np.ndarray
+    acceptance: np.ndarray
+    stuck: int
+    converged: bool
+    reasons: tuple[str, ...]
+
+    @classmethod
+    def judge(
+        cls, chains: list[np.ndarray], accepted: list[np.ndarray], *, names, check_every: int,
+        tau_multiple: float, tau_rtol: float, rhat_max: float, burn_in_tau: float,
+        stuck_ratio: float,
+    ) -> EnsembleDiagnostics:
+        """Compute the diagnostics and the convergence verdict.
+
+        The rule (all must hold):
+
+        1. every ensemble's post-burn-in length exceeds ``tau_multiple`` x tau
+           for every parameter (emcee's guidance: tau is trustworthy beyond ~50 tau);
+        2. tau has stabilised: it changed by less than ``tau_rtol`` (relative)
+           since the previous check, ``check_every`` steps earlier;
+        3. rank-normalised split R-hat across ensembles < ``rhat_max`` for every
+           parameter (Vehtari et al. 2021 recommend 1.01);
+        4. no stuck walkers (acceptance below ``stuck_ratio`` x the median of
+           its ensemble) — a stuck walker holds a region the others left.
+
+        Parameters
+        ----------
+        chains : list of ndarray, each (n_steps, n_walkers, ndim)
+            One per independent ensemble, all of the same length.
+        accepted : list of ndarray, each (n_walkers,)
+            Accepted-proposal counts per walker.
+        """
+        n_steps = chains[0].shape[0]
+        ndim = chains[0].shape[2]
+        burns, taus, taus_prev = [], [], []
+        for chain in chains:
+            b = burn_in(chain, burn_in_tau)
+            burns.append(b)
+            taus.append(autocorr_time(chain[b:]))
+            prev = chain[: n_steps - check_every]
+            if prev.shape[0] >= max(8, check_every):
+                bp = burn_in(prev, burn_in_tau)
+                taus_prev.append(autocorr_time(prev[bp:]))
+            else:
+                taus_prev.append(np.full(ndim, np.nan))
+        tau = np.array(taus)
+        tau_prev = np.array(taus_prev)
+        post = np.array([n_steps - b for b in burns], dtype=float)
+        n_tau = np.min(post[:, None] / tau, axis=0)
+        n_walkers = chains[0].shape[1]
+        ess = np.sum(post[:, None] * n_walkers / tau, axis=0)
+        n_common = int(min(post))
+        rhat = np.full(ndim, np.nan)
+        if n_common >= 4:
+            for j in range(ndim):
+                rows = [c[-n_common:, :, j].ravel() for c in chains]
+                rhat[j] = rank_normalised_split_rhat(np.array(rows))
+        acceptance = np.array([a / max(n_steps, 1) for a in accepted])
+        n_stuck = int(sum(stuck_walkers(a, stuck_ratio).size for a in acceptance))
+
+        reasons = []
+        if not np.all(n_tau > tau_multiple):
+            worst = names[int(np.nanargmin(n_tau))]
+            reasons.append(
+                f"chain only {np.nanmin(n_tau):.0f} autocorrelation times long "
+                f"(need {tau_multiple:g}; worst: {worst})"
+            )
+        change = np.abs(tau - tau_prev) / tau
+        if not np.all(change < tau_rtol):
+            reasons.append(
+                f"autocorrelation time still changing ({np.nanmax(change) * 100:.0f} % "
+                f"over the last {check_every} steps; need < {tau_rtol * 100:g} %)"
+                if np.all(np.isfinite(change)) else "autocorrelation time not yet estimable twice"
+            )
+        if not np.all(rhat < rhat_max):
+            if np.any(np.isfinite(rhat)):
+                worst = names[int(np.nanargmax(rhat))]
+                reasons.append(f"R-hat {np.nanmax(rhat):.3f} >= {rhat_max:g} (worst: {worst})")
+            else:
+                reasons.append("R-hat not computable (chains too short or constant)")
+        if n_stuck:
+            reasons.append(f"{n_stuck} stuck walker(s)")
+        return cls(
+            names=tuple(names), n_steps=n_steps, burn_in=tuple(burns), tau=tau,
+            tau_previous=tau_prev, n_tau=n_tau, ess=ess, rhat=rhat, acceptance=acceptance,
+            stuck=n_stuck, converged=not reasons, reasons=tuple(reasons),
+        )
+
+    def to_dict(self) -> dict:
+        """JSON-friendly form (per-parameter values keyed by name)."""
+        def per_param(values):
+            return {n: _num(v) for n, v in zip(self.names, values, strict=True)}
+
+        return {
+            "converged": self.converged,
+            "reasons": list(self.reasons),
+            "n_steps": self.n_steps,
+            "burn_in": list(self.burn_in),
+            "tau_steps": per_param(np.nanmax(self.tau, axis=0)),
+            "length_in_tau": per_param(self.n_tau),
+            "ess": per_param(self.ess),
+            "rhat": per_param(self.rhat),
+            "acceptance_fraction": _num(np.mean(self.acceptance)),
+            "acceptance_fraction_per_ensemble": [_num(np.mean(a)) for a in self.acceptance],
+            "stuck_walkers": self.stuck,
+        }
+
+
+def _num(value) -> float | None:
+    value = float(value)
+    return value if math.isfinite(value) else None

@@ -1,0 +1,287 @@
+"""Independent emcee ensembles run in blocks until they converge (or hit the cap).
+
+Every ensemble uses a mixture of emcee moves suited to correlated and
+possibly multimodal targets: differential evolution (``DEMove``, ter Braak
+2006; Nelson et al. 2014), its snooker variant (``DESnookerMove``, ter Braak &
+Vrugt 2008), which proposes jumps along lines through other walkers and so can
+cross between separated regions, the affine-invariant stretch move
+(``StretchMove``, Goodman & Weare 2010; off by default, it mixed slowest in our
+trials), and an independence proposal from the Laplace approximation of the
+mode (:class:`IndependenceMove`), which roughly halved the autocorrelation
+time of the rotation posterior in our trials.
+
+Randomness: each ensemble gets its own legacy ``RandomState`` (emcee's moves
+draw from the sampler's ``RandomState``, never numpy's global one when its
+state is set explicitly) seeded from a ``SeedSequence`` child of the star's
+seed, and its starting positions come from a ``Generator`` seeded the same
+way. The state after every block is stored, so a resumed run continues
+exactly where the interrupted one stopped.
+
+References
+----------
+Foreman-Mackey, D., Hogg, D. W., Lang, D. & Goodman, J. 2013, PASP 125, 306 (emcee).
+Goodman, J. & Weare, J. 2010, CAMCoS 5, 65. ter Braak, C. J. F. 2006, Stat. Comput.
+16, 239. ter Braak, C. J. F. & Vrugt, J. A. 2008, Stat. Comput. 18, 435.
+Tierney, L. 1994, Annals of Statistics 22, 1701.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import emcee
+import numpy as np
+
+from ..errors import ConvergenceWarning
+from .checkpoint import Checkpoint
+from .convergence import EnsembleDiagnostics
+from .settings import SamplerConfig
+
+__all__ = ["EnsembleRun", "IndependenceMove", "run_ensembles"]
+
+
+@dataclass(frozen=True)
+class EnsembleRun:
+    """Chains of independent ensembles sampling one target.
+
+    Attributes
+    ----------
+    chains : tuple of ndarray, each (n_steps, n_walkers, ndim)
+        Full chains, burn-in included.
+    log_prob : tuple of ndarray, each (n_steps, n_walkers)
+    diagnostics : EnsembleDiagnostics
+    """
+
+    chains: tuple[np.ndarray, ...]
+    log_prob: tuple[np.ndarray, ...]
+    diagnostics: EnsembleDiagnostics
+
+    @property
+    def converged(self) -> bool:
+        return self.diagnostics.converged
+
+    def samples(self) -> np.ndarray:
+        """Post-burn-in draws of all ensembles, flattened: shape (n, ndim)."""
+        parts = [
+            c[b:].reshape(-1, c.shape[2])
+            for c, b in zip(self.chains, self.diagnostics.burn_in, strict=True)
+        ]
+        return np.concatenate(parts, axis=0)
+
+    def sample_log_prob(self) -> np.ndarray:
+        """Log posterior of the draws returned by :meth:`samples`."""
+        parts = [
+            lp[b:].ravel() for lp, b in zip(self.log_prob, self.diagnostics.burn_in, strict=True)
+        ]
+        return np.concatenate(parts)
+
+
+class IndependenceMove(emcee.moves.MHMove):
+    """Independence Metropolis-Hastings proposal from a fixed multivariate Student-t.
+
+    Every walker proposes a fresh draw from t_df(loc, scale^2 cov), independent of
+    its position, accepted with the Metropolis-Hastings ratio
+    p(q) g(x) / (p(x) g(q)) (Tierney 1994). The proposal is fixed for the whole
+    run (centred on the optimum, shaped by the Laplace covariance), so the chain
+    is an exact MCMC; when the posterior is close to the Laplace approximation
+    successive draws are nearly independent, and where it is not, the
+    differential-evolution moves do the work.
+
+    References
+    ----------
+    Tierney, L. 1994, Annals of Statistics 22, 1701.
+    """
+
+    def __init__(self, loc, cov, *, df: float = 4.0, scale: float = 1.5):
+        self.loc = np.asarray(loc, dtype=float)
+        self.df = float(df)
+        cov = np.asarray(cov, dtype=float) * scale**2
+        w, v = np.linalg.eigh(0.5 * (cov + cov.T))
+        w = np.clip(w, 1e-300, None)
+        self.root = v * np.sqrt(w)
+        self.inv_root = (v / np.sqrt(w)).T
+        super().__init__(self._propose)
+
+    def _log_g(self, x):
+        z = (x - self.loc) @ self.inv_root.T
+        return -0.5 * (self.df + x.shape[1]) * np.log1p(np.sum(z * z, axis=1) / self.df)
+
+    def _propose(self, coords, random):
+        n, d = coords.shape
+        z = random.standard_normal((n, d))
+        u = random.chisquare(self.df, n)
+        q = self.loc + (z @ self.root.T) * np.sqrt(self.df / u)[:, None]
+        return q, self._log_g(coords) - self._log_g(q)
+
+
+def _moves(weights, start, covariance, scale):
+    de, snooker, stretch, independence = weights
+    moves = [(emcee.moves.DEMove(), de), (emcee.moves.DESnookerMove(), snooker),
+             (emcee.moves.StretchMove(), stretch)]
+    if independence > 0:
+        moves.append((IndependenceMove(start, covariance, scale=scale), independence))
+    return [(m, w) for m, w in moves if w > 0]
+
+
+def _child(seed_seq: np.random.SeedSequence, *key: int) -> np.random.SeedSequence:
+    # Deterministic children (SeedSequence.spawn is stateful, this is not).
+    return np.random.SeedSequence(seed_seq.entropy, spawn_key=tuple(seed_seq.spawn_key) + key)
+
+
+def _initial_positions(log_prob, start, covariance, n_walkers, scale, rng, label):
+    ndim = start.size
+    cov = np.asarray(covariance, dtype=float) * scale**2
+    # a robust square root (the covariance may be nearly singular)
+    w, v = np.linalg.eigh(0.5 * (cov + cov.T))
+    root = v * np.sqrt(np.clip(w, 1e-300, None))
+    pos = np.empty((n_walkers, ndim))
+    lp = np.full(n_walkers, -math.inf)
+    todo = np.arange(n_walkers)
+    for _ in range(200):
+        if todo.size == 0:
+            break
+        pos[todo] = start + rng.standard_normal((todo.size, ndim)) @ root.T
+        lp[todo] = [log_prob(p) for p in pos[todo]]
+        todo = todo[~np.isfinite(lp[todo])]
+        root *= 0.9  # shrink towards the optimum if draws keep failing
+    if todo.size:
+        raise RuntimeError(f"{label}: could not place walkers with finite log posterior")
+    return pos, lp
+
+
+def run_ensembles(
+    log_prob: Callable[[np.ndarray], float],
+    start,
+    covariance,
+    *,
+    config: SamplerConfig,
+    seed: np.random.SeedSequence | int,
+    names=None,
+    checkpoint: Checkpoint | None = None,
+    group: str = "ensembles",
+    label: str = "target",
+    progress: Callable[[int], None] | None = None,
+) -> EnsembleRun:
+    """Run ``config.n_ensembles`` independent ensembles until converged or capped.
+
+    The ensembles advance together in blocks of ``config.check_every`` steps;
+    after each block the diagnostics of :meth:`EnsembleDiagnostics.judge` are
+    computed and sampling stops when the rule is met, or when the ensembles
+    reach ``config.max_steps`` (then a :class:`~rotinfer.errors.ConvergenceWarning`
+    is issued and the diagnostics say ``converged=False``).
+
+    Parameters
+    ----------
+    log_prob : callable
+        Log density of the target; must return ``-inf`` (never NaN) outside it.
+    start : ndarray (ndim,)
+        Centre of the initial walker distribution (e.g. the mode).
+    covariance : ndarray (ndim, ndim)
+        Local covariance there (e.g. the inverse Hessian); walkers start from
+        Normal(start, (init_scale^2) covariance).
+    config : SamplerConfig
+    seed : SeedSequence or int
+        Ensemble e uses the children (e, 0) (start positions) and (e, 1) (moves).
+    names : sequence of str, optional
+        Parameter names for the diagnostics.
+    checkpoint : Checkpoint, optional
+        Where chains are appended after each block and resumed from.
+    group : str
+        Prefix of this target's groups in the checkpoint.
+    label : str
+        How messages name this target.
+    progress : callable, optional
+        Called with the number of steps just completed by every ensemble.
+
+    Returns
+    -------
+    EnsembleRun
+    """
+    seed_seq = seed if isinstance(seed, np.random.SeedSequence) else np.random.SeedSequence(seed)
+    start = np.asarray(start, dtype=float)
+    ndim = start.size
+    names = tuple(names) if names is not None else tuple(f"x{i}" for i in range(ndim))
+    n_walkers = max(config.n_walkers, 2 * ndim + 2)
+    moves = _moves(config.move_weights, start, covariance, config.independence_scale)
+
+    groups = [f"{group}/ensemble{e}" for e in range(config.n_ensembles)]
+    n_resume = 0
+    if checkpoint is not None:
+        # resume from the last block every ensemble completed (an interruption can leave
+        # one ensemble a block ahead of another)
+        n_resume = min(checkpoint.stored_steps(g) for g in groups)
+        for g in groups:
+            if checkpoint.stored_steps(g) > n_resume:
+                checkpoint.truncate(g, n_resume)
+
+    chains, logps, accepted, coords, lps, rstates = [], [], [], [], [], []
+    for e in range(config.n_ensembles):
+        saved = checkpoint.load_ensemble(groups[e], n_resume) if n_resume else None
+        if saved is not None and saved.chain.shape[1:] == (n_walkers, ndim):
+            chains.append(saved.chain)
+            logps.append(saved.log_prob)
+            accepted.append(saved.accepted.astype(np.int64))
+            coords.append(saved.chain[-1].copy())
+            lps.append(saved.log_prob[-1].copy())
+            rstates.append(saved.random_state)
+            continue
+        init_rng = np.random.default_rng(_child(seed_seq, e, 0))
+        pos, lp = _initial_positions(
+            log_prob, start, covariance, n_walkers, config.init_scale, init_rng, label
+        )
+        chains.append(np.empty((0, n_walkers, ndim)))
+        logps.append(np.empty((0, n_walkers)))
+        accepted.append(np.zeros(n_walkers, dtype=np.int64))
+        coords.append(pos)
+        lps.append(lp)
+        rs = np.random.RandomState(np.random.MT19937(_child(seed_seq, e, 1)))
+        rstates.append(rs.get_state())
+
+    if len({c.shape[0] for c in chains}) != 1:
+        raise RuntimeError(
+            f"{label}: checkpoint ensembles do not match this run (walkers or parameters "
+            "differ); delete the checkpoint file"
+        )
+
+    judge_kwargs = dict(
+        names=names, check_every=config.check_every, tau_multiple=config.tau_multiple,
+        tau_rtol=config.tau_rtol, rhat_max=config.rhat_max, burn_in_tau=config.burn_in_tau,
+        stuck_ratio=config.stuck_ratio,
+    )
+    diagnostics = None
+    while True:
+        n = chains[0].shape[0]
+        if n > 0 and (n % config.check_every == 0 or n >= config.max_steps):
+            diagnostics = EnsembleDiagnostics.judge(chains, accepted, **judge_kwargs)
+            if diagnostics.converged or n >= config.max_steps:
+                break
+        steps = min(config.check_every - n % config.check_every, config.max_steps - n)
+        for e in range(config.n_ensembles):
+            sampler = emcee.EnsembleSampler(n_walkers, ndim, log_prob, moves=moves)
+            state = emcee.State(coords[e], log_prob=lps[e], random_state=rstates[e])
+            final = sampler.run_mcmc(state, steps, skip_initial_state_check=n > 0)
+            block = sampler.get_chain()
+            block_lp = sampler.get_log_prob()
+            accepted[e] = accepted[e] + sampler.backend.accepted.astype(np.int64)
+            chains[e] = np.concatenate([chains[e], block], axis=0)
+            logps[e] = np.concatenate([logps[e], block_lp], axis=0)
+            coords[e] = final.coords.copy()
+            lps[e] = final.log_prob.copy()
+            rstates[e] = sampler.random_state
+            if checkpoint is not None:
+                checkpoint.append(groups[e], block, block_lp, accepted[e], rstates[e], names=names)
+        if progress is not None:
+            progress(steps)
+
+    if not diagnostics.converged:
+        warnings.warn(
+            ConvergenceWarning(
+                f"{label}: NOT CONVERGED after {diagnostics.n_steps} steps per ensemble "
+                f"(cap {config.max_steps}): " + "; ".join(diagnostics.reasons)
+            ),
+            stacklevel=2,
+        )
+    return EnsembleRun(chains=tuple(chains), log_prob=tuple(logps), diagnostics=diagnostics)

@@ -1,0 +1,370 @@
+"""Mode finding: optimise the posterior from many start periods, keep every distinct mode.
+
+The period posterior of a spotted star is multimodal: the true period, its
+half (two spots on opposite hemispheres) and its double (a light curve periodic
+at P is periodic at 2P), and aliases. Each optimisation is therefore kept in a
+window of periods around its start (``[sampler] period_window``) so that a start
+at P/2 finds the P/2 mode, if there is one, rather than sliding to P; optima are
+merged into modes when their periods agree within ``mode_tolerance``; and every
+mode gets a Laplace estimate of its evidence so that modes can be compared.
+
+Laplace evidence (e.g. MacKay 2003, ch. 27): with H the Hessian of minus the
+log posterior at the mode, in the unconstrained space where the prior is
+normalised, ln Z ~ ln p(D, theta*) + (d/2) ln 2 pi - (1/2) ln det H. H is
+computed by central finite differences with a step per parameter chosen so
+that the log posterior drops by ~0.1 along it. When H is not positive
+definite the point is not a maximum of the (numerical) posterior; the estimate
+is then reported as unavailable (``laplace_valid=False``, ``log_evidence=nan``)
+rather than patched, and such a mode is ranked by its peak log posterior.
+
+References
+----------
+MacKay, D. J. C. 2003, Information Theory, Inference, and Learning Algorithms,
+ch. 27 (Laplace's method). Byrd, Lu, Nocedal & Zhu 1995, SIAM J. Sci. Comput. 16,
+1190 (L-BFGS-B, via scipy.optimize.minimize).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import optimize
+
+from ..model import RotationModel
+from .settings import SamplerConfig
+
+__all__ = ["Laplace", "Mode", "find_modes", "fit_aperiodic", "laplace", "relation"]
+
+
+@dataclass(frozen=True)
+class Laplace:
+    """Laplace approximation at a maximum of the log posterior.
+
+    Attributes
+    ----------
+    log_evidence : float
+        ln Z estimate, NaN when the Hessian is not positive definite.
+    covariance : ndarray (ndim, ndim)
+        Inverse Hessian (when invalid: a positive-definite stand-in built from
+        the finite-difference steps, good enough to place walkers).
+    valid : bool
+    note : str
+    """
+
+    log_evidence: float
+    covariance: np.ndarray
+    valid: bool
+    note: str = ""
+
+
+@dataclass(frozen=True)
+class Mode:
+    """One distinct maximum of the posterior.
+
+    Attributes
+    ----------
+    theta : ndarray (ndim,)
+        Position (unconstrained parameters).
+    period : float
+        Period at the maximum, days (NaN for the aperiodic model).
+    log_posterior, log_likelihood : float
+        At the maximum (the posterior is prior x likelihood, normalised priors).
+    laplace : Laplace
+    n_optima : int
+        How many optimisations ended in this mode.
+    """
+
+    theta: np.ndarray
+    period: float
+    log_posterior: float
+    log_likelihood: float
+    laplace: Laplace
+    n_optima: int = 1
+
+    @property
+    def log_evidence(self) -> float:
+        return self.laplace.log_evidence
+
+    @property
+    def rank_value(self) -> float:
+        """Laplace log evidence, or the peak log posterior when Laplace is unavailable."""
+        return self.laplace.log_evidence if self.laplace.valid else self.log_posterior
+
+    def to_dict(self) -> dict:
+        return {
+            "theta": [float(v) for v in self.theta],
+            "period": self.period,
+            "log_posterior": self.log_posterior,
+            "log_likelihood": self.log_likelihood,
+            "log_evidence": self.laplace.log_evidence,
+            "laplace_valid": self.laplace.valid,
+            "laplace_note": self.laplace.note,
+            "covariance": self.laplace.covariance.tolist(),
+            "n_optima": self.n_optima,
+        }
+
+    @classmethod
+    def from_dict(cls, d: dict) -> Mode:
+        lap = Laplace(
+            log_evidence=float(d["log_evidence"]) if d["log_evidence"] is not None else math.nan,
+            covariance=np.array(d["covariance"], dtype=float),
+            valid=bool(d["laplace_valid"]), note=d["laplace_note"],
+        )
+        return cls(
+            theta=np.array(d["theta"], dtype=float), period=float(d["period"]),
+            log_posterior=float(d["log_posterior"]), log_likelihood=float(d["log_likelihood"]),
+            laplace=lap, n_optima=int(d["n_optima"]),
+        )
+
+
+def relation(period: float, reference: float, tolerance: float) -> str:
+    """Name the harmonic relation of ``period`` to ``reference``: "P", "P/2", "2P", ... or "other".
+
+    A ratio within ``tolerance`` (fractional) of 1, 1/2, 2, 1/3 or 3 gets its name.
+    """
+    for name, ratio in (("P", 1.0), ("P/2", 0.5), ("2P", 2.0), ("P/3", 1 / 3), ("3P", 3.0)):
+        if abs(math.log(period / (reference * ratio))) < math.log1p(tolerance):
+            return name
+    return "other"
+
+
+# --------------------------------------------------------------------------- Laplace
+def _steps(f, theta, f0, lo=1e-6, hi=3.0):
+    """Per-parameter steps along which f drops by ~0.1 (a tenth of a unit of log density)."""
+    steps = np.empty(theta.size)
+    for i in range(theta.size):
+        h = 1e-2
+        for _ in range(12):
+            e = np.zeros(theta.size)
+            e[i] = h
+            drop = f0 - 0.5 * (f(theta + e) + f(theta - e))
+            if not np.isfinite(drop):
+                h *= 0.2
+            elif drop <= 1e-4:
+                h *= 4.0
+            elif drop > 1.0:
+                h *= math.sqrt(0.1 / drop)
+            else:
+                break
+            h = min(max(h, lo), hi)
+        steps[i] = h
+    return steps
+
+
+def laplace(log_prob, theta) -> tuple[Laplace, np.ndarray]:
+    """Laplace approximation of ``log_prob`` at its maximum ``theta``.
+
+    Returns the :class:`Laplace` result and the Hessian of minus ``log_prob``.
+    """
+    theta = np.asarray(theta, dtype=float)
+    d = theta.size
+    f0 = float(log_prob(theta))
+    h = _steps(log_prob, theta, f0)
+    hess = np.empty((d, d))
+    ev = {}
+
+    def fval(shift):
+        key = tuple(shift)
+        if key not in ev:
+            x = theta.copy()
+            for i, s in enumerate(shift):
+                x[i] += s * h[i]
+            ev[key] = float(log_prob(x))
+        return ev[key]
+
+    zero = [0] * d
+    for i in range(d):
+        plus, minus = list(zero), list(zero)
+        plus[i], minus[i] = 1, -1
+        hess[i, i] = -(fval(plus) - 2 * f0 + fval(minus)) / h[i] ** 2
+        for j in range(i):
+            pp, pm, mp, mm = list(zero), list(zero), list(zero), list(zero)
+            pp[i], pp[j] = 1, 1
+            pm[i], pm[j] = 1, -1
+            mp[i], mp[j] = -1, 1
+            mm[i], mm[j] = -1, -1
+            v = -(fval(pp) - fval(pm) - fval(mp) + fval(mm)) / (4 * h[i] * h[j])
+            hess[i, j] = hess[j, i] = v
+    fallback = np.diag(h**2 * 10.0)
+    if not np.all(np.isfinite(hess)):
+        note = "Hessian not finite (mode at a prior edge?)"
+        return Laplace(math.nan, fallback, False, note), hess
+    w, v = np.linalg.eigh(hess)
+    if w.min() <= 0:
+        n_bad = int(np.sum(w <= 0))
+        # stand-in covariance for placing walkers: flip/raise bad eigenvalues
+        w_fix = np.where(w > 0, w, np.maximum(np.abs(w), 1.0 / np.max(h) ** 2))
+        cov = (v / w_fix) @ v.T
+        note = f"Hessian not positive definite ({n_bad} non-positive eigenvalue(s))"
+        return Laplace(math.nan, cov, False, note), hess
+    cov = (v / w) @ v.T
+    log_z = f0 + 0.5 * d * math.log(2 * math.pi) - 0.5 * float(np.sum(np.log(w)))
+    return Laplace(log_z, 0.5 * (cov + cov.T), True, ""), hess
+
+
+# ---------------------------------------------------------------------- optimisation
+def _bounds(model: RotationModel, window_lo=None, window_hi=None):
+    """Box for L-BFGS-B: the period window, and +-8 prior sd (or the logit range) elsewhere."""
+    bounds = []
+    for name, prior in model._priors.items():
+        if name == "log_period":
+            lo, hi = prior.a, prior.b
+            if window_lo is not None:
+                lo, hi = max(lo, window_lo), min(hi, window_hi)
+            bounds.append((lo, hi))
+        elif prior.kind == "normal":
+            bounds.append((prior.a - 8 * prior.b, prior.a + 8 * prior.b))
+        elif prior.kind == "logit-beta":
+            bounds.append((-12.0, 12.0))
+        else:
+            bounds.append((prior.a, prior.b))
+    return bounds
+
+
+def _minimise(model, x0, bounds):
+    def objective(x):
+        v = model(x)
+        return -v if math.isfinite(v) else 1e30
+
+    best = None
+    x = np.clip(x0, [b[0] for b in bounds], [b[1] for b in bounds])
+    for _ in range(2):  # a restart from the first result polishes L-BFGS-B's answer
+        res = optimize.minimize(objective, x, method="L-BFGS-B", bounds=bounds,
+                                options={"maxiter": 2000, "maxfun": 20000})
+        if best is None or res.fun < best.fun:
+            best = res
+        x = res.x
+    return best.x, -best.fun
+
+
+def _data_scales(model: RotationModel):
+    sd = float(np.std(model.flux))
+    err = float(np.median(model.flux_err)) if np.any(model.flux_err > 0) else 0.0
+    diff = float(np.median(np.abs(np.diff(model.flux)))) / math.sqrt(2) / 0.6745
+    noise = max(err, diff, 1e-7)
+    signal = math.sqrt(max(sd**2 - noise**2, (0.3 * sd) ** 2, 1e-14))
+    return signal, noise, float(np.median(model.flux))
+
+
+def _starts(model: RotationModel, period: float, n: int, rng: np.random.Generator):
+    signal, noise, level = _data_scales(model)
+    base = [(3.0, 0.3), (30.0, 0.6), (1.0, 0.1), (100.0, 0.9)]
+    out = []
+    for k in range(n):
+        coh, f = base[k] if k < len(base) else (
+            float(np.exp(rng.uniform(0, 5))), float(rng.uniform(0.05, 0.95))
+        )
+        nat = dict(
+            period=period, sigma=signal, coherence_rotations=coh,
+            f=f * model.config.max_secondary_fraction, r=0.5,
+            background_sigma=0.3 * signal, background_tau=max(period / 3.0, 0.05),
+            jitter=0.5 * noise, mean=level,
+        )
+        out.append(model.pack(**nat))
+    return out
+
+
+def _optimise_from(model, x0, config):
+    """Optimise with the period held within a window around the start (re-centred twice)."""
+    w = math.log(config.period_window)
+    centre = x0[0]
+    x, lp = x0, -math.inf
+    for _ in range(3):
+        bounds = _bounds(model, centre - w, centre + w)
+        x, lp = _minimise(model, x, bounds)
+        lo, hi = bounds[0]
+        at_edge = (x[0] - lo < 1e-4 and lo > model._priors["log_period"].a) or (
+            hi - x[0] < 1e-4 and hi < model._priors["log_period"].b
+        )
+        if not at_edge:
+            break
+        centre = x[0]
+    return x, lp
+
+
+def find_modes(
+    model: RotationModel, candidate_periods, *, config: SamplerConfig, rng: np.random.Generator
+) -> tuple[Mode, ...]:
+    """Optimise from each candidate period, its half and its double; return distinct modes.
+
+    Parameters
+    ----------
+    model : RotationModel
+        The periodic model.
+    candidate_periods : sequence of float or CandidateSet
+        Start periods in days (a :class:`rotinfer.periodogram.CandidateSet`, or
+        anything with ``.periods()``, is accepted too).
+    config : SamplerConfig
+    rng : Generator
+        For starts beyond the fixed ones.
+
+    Returns
+    -------
+    tuple of Mode
+        Sorted by decreasing rank value (Laplace log evidence where valid).
+    """
+    if hasattr(candidate_periods, "periods"):
+        candidate_periods = candidate_periods.periods()
+    lo, hi = model.period_range
+    tol = math.log1p(config.mode_tolerance)
+    starts: list[float] = []
+
+    def add(p):
+        p = float(p)
+        if lo <= p <= hi and np.isfinite(p) and all(abs(math.log(p / q)) > tol for q in starts):
+            starts.append(p)
+
+    for p in candidate_periods:
+        for factor in (1.0, 0.5, 2.0):
+            add(p * factor)
+    n_grid = config.grid_periods if starts else max(config.grid_periods, 6)
+    if n_grid:
+        for p in np.exp(np.linspace(math.log(lo), math.log(hi), n_grid + 2)[1:-1]):
+            add(p)
+
+    optima = []
+    for p in starts:
+        for x0 in _starts(model, p, config.starts_per_period, rng):
+            x, lp = _optimise_from(model, x0, config)
+            if math.isfinite(lp):
+                optima.append((lp, x))
+    optima.sort(key=lambda o: -o[0])
+
+    groups: list[list] = []  # [lp, x, count]
+    for lp, x in optima:
+        for g in groups:
+            if abs(x[0] - g[1][0]) < tol:
+                g[2] += 1
+                break
+        else:
+            groups.append([lp, x, 1])
+
+    modes = []
+    for lp, x, count in groups:
+        lap, _ = laplace(model, x)
+        modes.append(Mode(
+            theta=np.array(x), period=math.exp(x[0]), log_posterior=float(lp),
+            log_likelihood=model.log_likelihood(x), laplace=lap, n_optima=count,
+        ))
+    modes.sort(key=lambda m: -m.rank_value)
+    return tuple(modes)
+
+
+def fit_aperiodic(model: RotationModel, *, config: SamplerConfig) -> Mode:
+    """Maximum and Laplace evidence of the aperiodic comparison model (background + noise)."""
+    null = model.aperiodic()
+    signal, noise, level = _data_scales(null)
+    best = None
+    baseline = float(null.time[-1] - null.time[0]) if null.time.size > 1 else 1.0
+    for tau in (0.1, 1.0, max(baseline / 5.0, 0.2)):
+        x0 = null.pack(background_sigma=signal, background_tau=tau, jitter=0.5 * noise,
+                       mean=level)
+        x, lp = _minimise(null, x0, _bounds(null))
+        if best is None or lp > best[0]:
+            best = (lp, x)
+    lp, x = best
+    lap, _ = laplace(null, x)
+    return Mode(theta=np.array(x), period=math.nan, log_posterior=float(lp),
+                log_likelihood=null.log_likelihood(x), laplace=lap)

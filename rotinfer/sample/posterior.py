@@ -1,0 +1,304 @@
+"""From a prepared light curve and candidate periods to a (possibly multimodal) posterior.
+
+Steps of :func:`fit`:
+
+1. :func:`~rotinfer.sample.optimise.find_modes` — optimise from every
+   candidate, its half and its double; distinct modes with Laplace evidence.
+2. Competitive modes — those whose Laplace log evidence is within
+   ``competitive_log_evidence`` of the best (at most ``max_sampled_modes``) —
+   are each sampled separately, with the period restricted to the mode's
+   *basin*: the period range between the geometric midpoints to the
+   neighbouring competitive modes (the first and last basins reach the prior
+   limits), so the basins partition the prior and no ensemble can silently
+   collapse onto another mode.
+3. With more than one sampled mode, each mode's evidence (the integral of the
+   posterior over its basin) is estimated by importance sampling from a
+   multivariate Student-t (4 degrees of freedom) fitted to the mode's draws
+   (e.g. Robert & Casella 2004, ch. 3), and the modes are combined with weights
+   proportional to those evidences: each mode's probability is reported.
+4. The aperiodic model (background + noise) is optimised for the detection test.
+
+The chains of every sampled mode are written to the checkpoint file as they
+grow; a fit restarted with the same data, settings and seed resumes from it.
+
+References
+----------
+Robert, C. P. & Casella, G. 2004, Monte Carlo Statistical Methods, 2nd ed., ch. 3
+(importance sampling).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import special, stats
+
+from ..config import dataclass_to_dict
+from ..model import RotationModel
+from .checkpoint import Checkpoint
+from .ensemble import EnsembleRun, run_ensembles
+from .optimise import Mode, find_modes, fit_aperiodic
+from .settings import SamplerConfig
+
+__all__ = ["Posterior", "SampledMode", "fit", "importance_log_evidence"]
+
+# Sampler settings that do not change the chains (a checkpoint made with other
+# values of these can be resumed, e.g. to extend a run that hit its cap).
+_NOT_IN_FINGERPRINT = ("max_steps", "importance_draws")
+
+
+@dataclass(frozen=True)
+class SampledMode:
+    """A mode that was sampled, with its share of the posterior.
+
+    Attributes
+    ----------
+    mode : Mode
+        The optimum it started from.
+    basin : (float, float)
+        Period range (days) the sampling was restricted to.
+    run : EnsembleRun
+        Chains and diagnostics.
+    log_evidence : float
+        Importance-sampling estimate of ln of the posterior mass in the basin
+        (NaN when only one mode was sampled: not needed).
+    log_evidence_se : float
+        Its standard error (in ln units, delta method).
+    importance_ess : float
+        Kish effective sample size of the importance weights.
+    probability : float
+        Posterior probability of the mode among the sampled ones.
+    """
+
+    mode: Mode
+    basin: tuple[float, float]
+    run: EnsembleRun
+    log_evidence: float
+    log_evidence_se: float
+    importance_ess: float
+    probability: float
+
+
+@dataclass(frozen=True)
+class Posterior:
+    """The combined posterior of the rotation model for one star.
+
+    Attributes
+    ----------
+    model : RotationModel
+        The (unrestricted) periodic model.
+    samples : ndarray (n, ndim)
+        Draws in the unconstrained space, all sampled modes together (thinned
+        to about two draws per autocorrelation time).
+    weights : ndarray (n,)
+        Weight of each draw (sums to 1): mode probability / draws of the mode.
+    mode_of_sample : ndarray (n,) of int
+        Index into ``sampled`` of the mode each draw came from.
+    modes : tuple of Mode
+        Every distinct mode the optimiser found, best first.
+    sampled : tuple of SampledMode
+    aperiodic : Mode
+        Maximum and Laplace evidence of the aperiodic comparison model.
+    converged : bool
+        True when every sampled mode met the convergence rule.
+    """
+
+    model: RotationModel
+    samples: np.ndarray
+    weights: np.ndarray
+    mode_of_sample: np.ndarray
+    modes: tuple[Mode, ...]
+    sampled: tuple[SampledMode, ...]
+    aperiodic: Mode
+    converged: bool
+
+    @property
+    def names(self) -> tuple[str, ...]:
+        return self.model.names
+
+    def physical(self) -> dict[str, np.ndarray]:
+        """Reported quantities of every draw (see :meth:`RotationModel.physical`)."""
+        return self.model.physical(self.samples)
+
+    @property
+    def map_theta(self) -> np.ndarray:
+        """The highest posterior point found (optimisation or sampling)."""
+        best = max(self.modes, key=lambda m: m.log_posterior)
+        theta, value = best.theta, best.log_posterior
+        for s in self.sampled:
+            lp = s.run.sample_log_prob()
+            i = int(np.argmax(lp))
+            if lp[i] > value:
+                theta, value = s.run.samples()[i], float(lp[i])
+        return np.asarray(theta)
+
+
+def importance_log_evidence(log_prob, draws, *, n: int, rng: np.random.Generator):
+    """ln of the integral of exp(log_prob), by importance sampling from a Student-t.
+
+    The proposal is a multivariate t with 4 degrees of freedom, centred on the
+    mean of ``draws`` with their covariance; heavier tails than the target keep
+    the weights bounded.
+
+    Returns
+    -------
+    log_z, log_z_se, ess : float
+        Estimate, standard error (delta method) and Kish effective sample size.
+    """
+    draws = np.asarray(draws, dtype=float)
+    mu = draws.mean(axis=0)
+    cov = np.cov(draws.T) + 1e-12 * np.eye(draws.shape[1])
+    q = stats.multivariate_t(loc=mu, shape=cov, df=4)
+    x = np.atleast_2d(q.rvs(size=n, random_state=rng))
+    logw = np.array([log_prob(xi) for xi in x]) - q.logpdf(x)
+    if not np.any(np.isfinite(logw)):
+        return -math.inf, math.inf, 0.0
+    log_z = float(special.logsumexp(logw) - math.log(n))
+    w = np.exp(logw - np.max(logw))
+    ess = float(w.sum() ** 2 / np.sum(w**2))
+    rel_se = float(np.std(w) / (math.sqrt(n) * np.mean(w)))
+    return log_z, rel_se, ess
+
+
+def _fingerprint(model: RotationModel, periods, config: SamplerConfig, seed) -> str:
+    h = hashlib.sha256()
+    for arr in (model.time, model.flux, model.flux_err):
+        h.update(np.ascontiguousarray(arr).tobytes())
+    sampler = {k: v for k, v in dataclass_to_dict(config).items() if k not in _NOT_IN_FINGERPRINT}
+    meta = {
+        "model": dataclass_to_dict(model.config), "period_range": list(model.period_range),
+        "sampler": sampler, "seed": seed, "periods": [float(p) for p in periods],
+    }
+    h.update(json.dumps(meta, sort_keys=True, default=str).encode())
+    return h.hexdigest()[:32]
+
+
+def _basins(periods: list[float], lo: float, hi: float) -> list[tuple[float, float]]:
+    order = np.argsort(periods)
+    edges = [lo]
+    sorted_p = [periods[i] for i in order]
+    for a, b in zip(sorted_p[:-1], sorted_p[1:], strict=True):
+        edges.append(math.sqrt(a * b))
+    edges.append(hi)
+    basins: list[tuple[float, float]] = [(0.0, 0.0)] * len(periods)
+    for rank, i in enumerate(order):
+        basins[i] = (edges[rank], edges[rank + 1])
+    return basins
+
+
+def _thin(run: EnsembleRun) -> np.ndarray:
+    tau = float(np.nanmin(run.diagnostics.tau)) if np.any(np.isfinite(run.diagnostics.tau)) else 1
+    step = max(1, int(0.5 * tau))
+    parts = [
+        c[b::step].reshape(-1, c.shape[2])
+        for c, b in zip(run.chains, run.diagnostics.burn_in, strict=True)
+    ]
+    return np.concatenate(parts, axis=0)
+
+
+def fit(
+    model: RotationModel,
+    candidates,
+    *,
+    config: SamplerConfig | None = None,
+    seed: int = 0,
+    checkpoint_path=None,
+    progress: Callable[[int], None] | None = None,
+) -> Posterior:
+    """Find the modes of the rotation posterior, sample the competitive ones, combine them.
+
+    Parameters
+    ----------
+    model : RotationModel
+        Periodic model of the star (see :meth:`RotationModel.from_prepared`).
+    candidates : sequence of float, or CandidateSet
+        Start periods (days), e.g. ``scan(prepared).candidates``.
+    config : SamplerConfig, optional
+    seed : int
+        Seed of this star; the same seed gives identical results.
+    checkpoint_path : path, optional
+        HDF5 file for the chains (created, or resumed when it matches this fit).
+    progress : callable, optional
+        Called with the number of steps completed in each block.
+
+    Returns
+    -------
+    Posterior
+
+    Warns
+    -----
+    ConvergenceWarning
+        When a mode's ensembles reach ``max_steps`` without converging.
+    """
+    config = config or SamplerConfig()
+    if hasattr(candidates, "periods"):
+        candidates = candidates.periods()
+    periods = [float(p) for p in candidates]
+    root = np.random.SeedSequence(int(seed))
+
+    def child(*key):
+        return np.random.SeedSequence(root.entropy, spawn_key=key)
+
+    ckpt = None
+    if checkpoint_path is not None:
+        ckpt = Checkpoint(checkpoint_path, fingerprint=_fingerprint(model, periods, config, seed))
+    stored = ckpt.load_json("modes") if ckpt is not None and ckpt.resumed else None
+    if stored is not None:
+        modes = tuple(Mode.from_dict(d) for d in stored["modes"])
+        aperiodic = Mode.from_dict(stored["aperiodic"])
+    else:
+        modes = find_modes(model, periods, config=config, rng=np.random.default_rng(child(0)))
+        aperiodic = fit_aperiodic(model, config=config)
+        if ckpt is not None:
+            ckpt.save_json("modes", {"modes": [m.to_dict() for m in modes],
+                                     "aperiodic": aperiodic.to_dict()})
+    if not modes:
+        raise RuntimeError("no finite optimum of the rotation posterior was found")
+
+    best = modes[0].rank_value
+    competitive = [m for m in modes if m.rank_value >= best - config.competitive_log_evidence]
+    competitive = competitive[: config.max_sampled_modes]
+    basins = _basins([m.period for m in competitive], *model.period_range)
+
+    runs = []
+    for k, (mode, basin) in enumerate(zip(competitive, basins, strict=True)):
+        target = model.restricted(basin) if len(competitive) > 1 else model
+        run = run_ensembles(
+            target, mode.theta, mode.laplace.covariance, config=config, seed=child(1, k),
+            names=model.names, checkpoint=ckpt, group=f"mode{k}",
+            label=f"mode at {mode.period:.4g} d", progress=progress,
+        )
+        runs.append((mode, basin, target, run))
+
+    sampled = []
+    if len(runs) == 1:
+        mode, basin, _, run = runs[0]
+        sampled.append(SampledMode(mode, basin, run, math.nan, math.nan, math.nan, 1.0))
+    else:
+        evid = []
+        for k, (_, _, target, run) in enumerate(runs):
+            evid.append(importance_log_evidence(
+                target, _thin(run), n=config.importance_draws,
+                rng=np.random.default_rng(child(2, k)),
+            ))
+        log_z = np.array([e[0] for e in evid])
+        prob = np.exp(log_z - special.logsumexp(log_z))
+        for (mode, basin, _, run), (lz, se, ess), p in zip(runs, evid, prob, strict=True):
+            sampled.append(SampledMode(mode, basin, run, lz, se, ess, float(p)))
+
+    parts, weights, labels = [], [], []
+    for k, s in enumerate(sampled):
+        draws = _thin(s.run)
+        parts.append(draws)
+        weights.append(np.full(len(draws), s.probability / len(draws)))
+        labels.append(np.full(len(draws), k, dtype=np.int64))
+    return Posterior(
+        model=model, samples=np.concatenate(parts), weights=np.concatenate(weights),
+        mode_of_sample=np.concatenate(labels), modes=modes, sampled=tuple(sampled),
+        aperiodic=aperiodic, converged=all(s.run.converged for s in sampled),
+    )

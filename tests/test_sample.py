@@ -1,0 +1,236 @@
+"""Tests of mode finding, ensemble sampling, convergence diagnostics and checkpointing."""
+
+from __future__ import annotations
+
+import contextlib
+import math
+import warnings
+
+import numpy as np
+import pytest
+from scipy import stats
+
+from rotinfer.errors import ConfigError, ConvergenceWarning
+from rotinfer.sample import (
+    Checkpoint,
+    SamplerConfig,
+    importance_log_evidence,
+    laplace,
+    rank_normalised_split_rhat,
+    relation,
+    run_ensembles,
+)
+
+MU = np.array([1.0, -2.0])
+COV = np.array([[1.0, 1.8], [1.8, 4.0]])  # correlation 0.9
+ICOV = np.linalg.inv(COV)
+
+
+def gaussian_2d(x):
+    d = x - MU
+    return -0.5 * d @ ICOV @ d
+
+
+@contextlib.contextmanager
+def _may_stop_early():
+    # Determinism and resume tests compare chains; whether the run converged before its
+    # cap does not matter to them.
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        yield
+
+
+def _small(**kw):
+    base = dict(n_walkers=12, n_ensembles=2, check_every=100, max_steps=4000)
+    base.update(kw)
+    return SamplerConfig(**base)
+
+
+def test_correlated_gaussian_mean_and_variance():
+    # Analytic target: N(MU, COV) with correlation 0.9. The sample mean must lie within
+    # 4 Monte Carlo standard errors sqrt(var / ESS) of MU, and the variances within
+    # 5 standard errors var * sqrt(2 / ESS) (large-sample variance of a sample variance,
+    # common practice).
+    run = run_ensembles(gaussian_2d, MU + 0.5, COV, config=_small(), seed=11)
+    assert run.converged, run.diagnostics.reasons
+    draws = run.samples()
+    ess = run.diagnostics.ess
+    mean = draws.mean(axis=0)
+    var = draws.var(axis=0)
+    true_var = np.diag(COV)
+    assert np.all(np.abs(mean - MU) < 4 * np.sqrt(true_var / ess)), (mean, ess)
+    assert np.all(np.abs(var - true_var) < 5 * true_var * np.sqrt(2 / ess)), (var, ess)
+    corr = np.corrcoef(draws.T)[0, 1]
+    assert corr == pytest.approx(0.9, abs=0.03)
+    d = run.diagnostics
+    assert np.all(d.n_tau > 50) and np.all(d.rhat < 1.01) and d.stuck == 0
+
+
+def test_cap_reached_is_loud_and_marked_not_converged():
+    with pytest.warns(ConvergenceWarning, match="NOT CONVERGED after 100 steps"):
+        run = run_ensembles(gaussian_2d, MU, COV, config=_small(max_steps=100), seed=1)
+    assert run.converged is False
+    assert run.diagnostics.reasons
+    assert run.chains[0].shape[0] == 100
+
+
+def test_same_seed_same_chains_other_seed_differs():
+    cfg = _small(max_steps=200)
+    with _may_stop_early():
+        a = run_ensembles(gaussian_2d, MU, COV, config=cfg, seed=5)
+    with _may_stop_early():
+        b = run_ensembles(gaussian_2d, MU, COV, config=cfg, seed=5)
+    with _may_stop_early():
+        c = run_ensembles(gaussian_2d, MU, COV, config=cfg, seed=6)
+    for x, y in zip(a.chains, b.chains, strict=True):
+        assert np.array_equal(x, y)
+    assert not np.array_equal(a.chains[0], c.chains[0])
+    # the two ensembles of one run are independent draws, not copies
+    assert not np.array_equal(a.chains[0], a.chains[1])
+
+
+def test_numpy_global_random_state_is_not_used():
+    # emcee falls back on numpy's global RandomState unless given a state; changing the
+    # global seed must not change our chains.
+    cfg = _small(max_steps=100)
+    saved = np.random.get_state()  # noqa: NPY002 - the global state is what is tested
+    try:
+        np.random.seed(1)  # noqa: NPY002
+        with _may_stop_early():
+            a = run_ensembles(gaussian_2d, MU, COV, config=cfg, seed=5)
+        np.random.seed(2)  # noqa: NPY002
+        with _may_stop_early():
+            b = run_ensembles(gaussian_2d, MU, COV, config=cfg, seed=5)
+    finally:
+        np.random.set_state(saved)  # noqa: NPY002
+    assert np.array_equal(a.chains[1], b.chains[1])
+
+
+def test_resume_from_checkpoint_continues_identically(tmp_path):
+    cfg_short, cfg_long = _small(max_steps=300), _small(max_steps=600)
+    with _may_stop_early():
+        ref = run_ensembles(gaussian_2d, MU, COV, config=cfg_long, seed=3)
+    path = tmp_path / "chains.h5"
+    fp = "test-fingerprint"
+    with _may_stop_early():
+        run_ensembles(gaussian_2d, MU, COV, config=cfg_short, seed=3,
+                      checkpoint=Checkpoint(path, fingerprint=fp), group="m0")
+    ck = Checkpoint(path, fingerprint=fp)
+    assert ck.resumed
+    assert ck.load_ensemble("m0/ensemble0").chain.shape[0] == 300
+    with _may_stop_early():
+        resumed = run_ensembles(gaussian_2d, MU, COV, config=cfg_long, seed=3, checkpoint=ck,
+                                group="m0")
+    for x, y in zip(ref.chains, resumed.chains, strict=True):
+        assert np.array_equal(x, y)
+
+
+def test_interrupted_run_resumes_identically(tmp_path):
+    # A run killed part-way (here: KeyboardInterrupt from inside the target after some
+    # calls) resumes from the last complete block and ends with the same chains as an
+    # uninterrupted run.
+    cfg = _small(max_steps=500)
+    with _may_stop_early():
+        ref = run_ensembles(gaussian_2d, MU, COV, config=cfg, seed=8)
+    calls = {"n": 0}
+
+    def fragile(x):
+        calls["n"] += 1
+        if calls["n"] > 12 * 100 * 3 + 500:  # during the 2nd ensemble's 2nd block
+            raise KeyboardInterrupt
+        return gaussian_2d(x)
+
+    path = tmp_path / "chains.h5"
+    with pytest.raises(KeyboardInterrupt):
+        run_ensembles(fragile, MU, COV, config=cfg, seed=8,
+                      checkpoint=Checkpoint(path, fingerprint="f"), group="g")
+    ck = Checkpoint(path, fingerprint="f")
+    assert ck.resumed
+    assert ck.stored_steps("g/ensemble0") == 200  # one block ahead of ensemble 1
+    assert ck.stored_steps("g/ensemble1") == 100
+    with _may_stop_early():
+        resumed = run_ensembles(gaussian_2d, MU, COV, config=cfg, seed=8, checkpoint=ck,
+                                group="g")
+    for x, y in zip(ref.chains, resumed.chains, strict=True):
+        assert np.array_equal(x, y)
+    assert ck.stored_steps("g/ensemble0") == ck.stored_steps("g/ensemble1") == 500
+
+
+def test_checkpoint_with_other_fingerprint_is_replaced(tmp_path):
+    path = tmp_path / "chains.h5"
+    ck = Checkpoint(path, fingerprint="a")
+    ck.save_json("modes", {"x": 1})
+    assert Checkpoint(path, fingerprint="a").load_json("modes") == {"x": 1}
+    other = Checkpoint(path, fingerprint="b")
+    assert not other.resumed
+    assert other.load_json("modes") is None
+
+
+def test_rank_normalised_split_rhat_matches_arviz(rng):
+    # Reference: ArviZ's rank-normalised split R-hat (Vehtari et al. 2021), method="rank".
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # ArviZ announces a refactor on import
+        import arviz
+
+    cases = [
+        rng.standard_normal((4, 500)),
+        rng.standard_normal((4, 500)) + np.array([0, 0, 0, 0.5])[:, None],
+        np.cumsum(rng.standard_normal((2, 400)), axis=1),
+        rng.standard_t(2, size=(3, 300)) * np.array([1, 1, 3])[:, None],
+    ]
+    for chains in cases:
+        ours = rank_normalised_split_rhat(chains)
+        ref = float(arviz.rhat(chains, method="rank"))
+        assert ours == pytest.approx(ref, rel=1e-10)
+
+
+def test_laplace_is_exact_for_a_gaussian():
+    # Analytic: for an unnormalised Gaussian exp(c) N(x; MU, COV) the evidence is exp(c)
+    # and the Laplace approximation is exact.
+    c = 3.7
+
+    def target(x):
+        return c + stats.multivariate_normal.logpdf(x, MU, COV)
+
+    lap, _ = laplace(target, MU)
+    assert lap.valid
+    assert lap.log_evidence == pytest.approx(c, abs=1e-5)
+    assert np.allclose(lap.covariance, COV, rtol=1e-4)
+
+
+def test_laplace_reports_a_saddle_honestly():
+    def saddle(x):
+        return -0.5 * x[0] ** 2 + 0.5 * x[1] ** 2
+
+    lap, _ = laplace(saddle, np.zeros(2))
+    assert not lap.valid
+    assert math.isnan(lap.log_evidence)
+    assert "not positive definite" in lap.note
+    assert np.all(np.linalg.eigvalsh(lap.covariance) > 0)  # still usable to place walkers
+
+
+def test_importance_evidence_of_a_gaussian(rng):
+    # Analytic: the integral of exp(c) N(x; MU, COV) is exp(c).
+    c = -12.0
+    draws = rng.multivariate_normal(MU, COV, size=3000)
+    log_z, se, ess = importance_log_evidence(
+        lambda x: c + stats.multivariate_normal.logpdf(x, MU, COV), draws, n=2000, rng=rng
+    )
+    assert abs(log_z - c) < 4 * se + 1e-3
+    assert ess > 500
+
+
+def test_relation_names():
+    assert relation(6.1, 3.0, 0.05) == "2P"
+    assert relation(1.52, 3.0, 0.05) == "P/2"
+    assert relation(3.05, 3.0, 0.05) == "P"
+    assert relation(4.4, 3.0, 0.05) == "other"
+
+
+def test_sampler_config_validation():
+    with pytest.raises(ConfigError, match="n_walkers"):
+        SamplerConfig(n_walkers=0)
+    with pytest.raises(ConfigError, match="move_weights"):
+        SamplerConfig(move_weights=(1.0, 0.0))
+    with pytest.raises(ConfigError, match="rhat_max"):
+        SamplerConfig(rhat_max=0.99)
