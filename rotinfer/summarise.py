@@ -1,0 +1,432 @@
+"""Summaries of the rotation posterior: intervals, harmonic check, detection, diagnostics.
+
+Conventions
+-----------
+* Equal-tailed intervals: the 16th-84th (68 %) and 2.5th-97.5th (95 %)
+  weighted percentiles of the posterior draws (all sampled modes together,
+  each weighted by its probability).
+* Highest-density region (HDR) of the period: the smallest set of ln P bins
+  holding the stated mass, from a weighted histogram of ln P with
+  Freedman-Diaconis-width bins (Hyndman 1996); returned as a list of
+  [lo, hi] day intervals, several when the posterior is multimodal.
+* MAP: the highest posterior point found by the optimiser or the sampler.
+* Amplitude: the standard deviation of the rotation signal (the GP rotation
+  term), in ppt; coherence time: the damping time of the mode at P, in days and
+  in rotations.
+
+References
+----------
+Hyndman, R. J. 1996, The American Statistician 50, 120 (highest-density regions).
+Kass, R. E. & Raftery, A. E. 1995, JASA 90, 773 (Bayes factors; BIC as an approximation).
+Schwarz, G. 1978, Ann. Stat. 6, 461 (BIC).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Literal
+
+import numpy as np
+from scipy import special
+
+from .errors import ConfigError
+from .sample import Posterior, relation
+
+__all__ = [
+    "DetectionConfig",
+    "StarSummary",
+    "detection",
+    "harmonic_check",
+    "hdr_intervals",
+    "summarise",
+    "weighted_quantile",
+]
+
+#: The rule behind the single ``converged`` verdict, written into every summary.
+CONVERGENCE_RULE = (
+    "converged = every sampled mode's ensembles (at least two by default) have a post-burn-in "
+    "length above [sampler] tau_multiple (50) integrated autocorrelation times for every "
+    "parameter, autocorrelation times that changed by less than [sampler] tau_rtol between the "
+    "last two checks, rank-normalised split R-hat across ensembles below [sampler] rhat_max "
+    "(1.01, Vehtari et al. 2021) for every parameter, and no stuck walkers"
+)
+
+
+@dataclass(frozen=True)
+class DetectionConfig:
+    """Is there a rotation signal at all? (``[detection]`` table.)
+
+    Attributes
+    ----------
+    statistic : "delta_bic" or "laplace"
+        ``delta_bic``: BIC(aperiodic) - BIC(periodic) at the posterior maxima,
+        i.e. 2 (ln L_p - ln L_a) - (k_p - k_a) ln N (Schwarz 1978).
+        ``laplace``: 2 ln B with B the ratio of the Laplace evidences (summed
+        over the periodic model's modes), on the same scale as delta_bic
+        (Kass & Raftery 1995).
+    threshold : float
+        The star is called periodic when the statistic exceeds this.
+    false_alarm_rate : float or None
+        Fraction of simulated null stars (no spots) called periodic at this
+        threshold, as measured by ``benchmarks/calibrate_detection.py``; None
+        when the threshold has not been calibrated.
+    calibration : str
+        Where the calibration came from (script, number of null stars, date).
+    harmonic_probability : float
+        The harmonic flag is raised when the posterior probability near P/2 or
+        2P (or the Laplace probability of an unsampled mode there) exceeds this.
+    harmonic_tolerance : float
+        "Near" means within this fraction of P/2 or 2P.
+    agreement_tolerance : float
+        A baseline period agrees with the posterior when it lies in the 95 %
+        interval widened by this fraction.
+    """
+
+    statistic: Literal["delta_bic", "laplace"] = "delta_bic"
+    threshold: float = 10.0
+    false_alarm_rate: float | None = None
+    calibration: str = "not calibrated"
+    harmonic_probability: float = 0.05
+    harmonic_tolerance: float = 0.1
+    agreement_tolerance: float = 0.1
+
+    def __post_init__(self):
+        if self.statistic not in ("delta_bic", "laplace"):
+            raise ConfigError(
+                f"[detection] statistic: {self.statistic!r} is not allowed; "
+                "choose one of 'delta_bic', 'laplace'"
+            )
+        if not math.isfinite(self.threshold):
+            raise ConfigError(f"[detection] threshold: must be finite, got {self.threshold}")
+        for name in ("harmonic_probability", "harmonic_tolerance", "agreement_tolerance"):
+            v = getattr(self, name)
+            if not 0 < v < 1:
+                raise ConfigError(f"[detection] {name}: must be in (0, 1), got {v}")
+        if self.false_alarm_rate is not None and not 0 <= self.false_alarm_rate <= 1:
+            raise ConfigError(
+                f"[detection] false_alarm_rate: must be in [0, 1], got {self.false_alarm_rate}"
+            )
+
+
+# --------------------------------------------------------------------- statistics
+def weighted_quantile(values, q, weights=None) -> np.ndarray:
+    """Quantiles ``q`` (in [0, 1]) of weighted draws (interpolated weighted ECDF, midpoint rule)."""
+    values = np.asarray(values, dtype=float)
+    w = np.ones_like(values) if weights is None else np.asarray(weights, dtype=float)
+    order = np.argsort(values)
+    v, w = values[order], w[order]
+    cdf = (np.cumsum(w) - 0.5 * w) / np.sum(w)
+    return np.interp(np.asarray(q, dtype=float), cdf, v)
+
+
+def hdr_intervals(values, mass: float, weights=None, *, log: bool = True) -> list[list[float]]:
+    """Highest-density region holding ``mass`` of the weighted draws (Hyndman 1996).
+
+    A weighted histogram (of ln values when ``log``) with Freedman-Diaconis
+    bin width; the densest bins are taken until ``mass`` is reached and
+    adjacent bins merged into intervals.
+    """
+    x = np.asarray(values, dtype=float)
+    w = np.ones_like(x) if weights is None else np.asarray(weights, dtype=float)
+    x = np.log(x) if log else x
+    w = w / w.sum()
+    q25, q75 = weighted_quantile(x, [0.25, 0.75], w)
+    n_eff = 1.0 / np.sum(w**2)
+    width = 2.0 * (q75 - q25) / max(n_eff, 1.0) ** (1 / 3)
+    span = x.max() - x.min()
+    if not width > 0 or span <= 0:
+        v = float(np.exp(x[0]) if log else x[0])
+        return [[v, v]]
+    n_bins = int(min(max(span / width, 10), 2000))
+    hist, edges = np.histogram(x, bins=n_bins, weights=w)
+    order = np.argsort(hist)[::-1]
+    keep = np.zeros(n_bins, dtype=bool)
+    total = 0.0
+    for i in order:
+        keep[i] = True
+        total += hist[i]
+        if total >= mass:
+            break
+    intervals = []
+    i = 0
+    while i < n_bins:
+        if keep[i]:
+            j = i
+            while j + 1 < n_bins and keep[j + 1]:
+                j += 1
+            lo, hi = edges[i], edges[j + 1]
+            intervals.append([float(np.exp(lo)), float(np.exp(hi))] if log else [lo, hi])
+            i = j + 1
+        else:
+            i += 1
+    return intervals
+
+
+def _describe(values, weights, map_value, unit: str) -> dict:
+    q = weighted_quantile(values, [0.025, 0.16, 0.5, 0.84, 0.975], weights)
+    return {
+        "unit": unit,
+        "median": float(q[2]),
+        "interval_68": [float(q[1]), float(q[3])],
+        "interval_95": [float(q[0]), float(q[4])],
+        "map": float(map_value),
+    }
+
+
+# --------------------------------------------------------------- harmonic check
+def harmonic_check(posterior: Posterior, reference: float, config: DetectionConfig) -> dict:
+    """Posterior probability of periods near ``reference``/2 and 2 x ``reference``.
+
+    Two sources, both reported: the weighted draws (all sampled modes), and
+    the Laplace probabilities of modes the optimiser found but that were not
+    competitive enough to be sampled. The flag is raised when either exceeds
+    ``config.harmonic_probability``.
+    """
+    period = posterior.physical()["period"]
+    w = posterior.weights
+    tol = math.log1p(config.harmonic_tolerance)
+    near_half = np.abs(np.log(period / (0.5 * reference))) < tol
+    near_double = np.abs(np.log(period / (2.0 * reference))) < tol
+    p_half = float(np.sum(w[near_half]))
+    p_double = float(np.sum(w[near_double]))
+
+    sampled_ids = {id(s.mode) for s in posterior.sampled}
+    valid = [m for m in posterior.modes if m.laplace.valid]
+    lap_half = lap_double = 0.0
+    if valid:
+        log_z = np.array([m.log_evidence for m in valid])
+        lap_p = np.exp(log_z - special.logsumexp(log_z))
+        for m, p in zip(valid, lap_p, strict=True):
+            if id(m) in sampled_ids:
+                continue
+            rel = relation(m.period, reference, config.harmonic_tolerance)
+            if rel == "P/2":
+                lap_half += float(p)
+            elif rel == "2P":
+                lap_double += float(p)
+    flag = max(p_half, p_double, lap_half, lap_double) > config.harmonic_probability
+    return {
+        "reference_period": float(reference),
+        "probability_half": p_half,
+        "probability_double": p_double,
+        "unsampled_laplace_probability_half": lap_half,
+        "unsampled_laplace_probability_double": lap_double,
+        "flag": bool(flag),
+        "threshold": config.harmonic_probability,
+        "tolerance": config.harmonic_tolerance,
+    }
+
+
+# --------------------------------------------------------------------- detection
+def detection(posterior: Posterior, config: DetectionConfig) -> dict:
+    """Periodic against aperiodic model: both statistics, and the decision on the configured one.
+
+    BIC difference (Schwarz 1978) at the posterior maxima and twice the ln
+    Laplace Bayes factor (Kass & Raftery 1995), both positive when the data
+    favour rotation. The decision uses ``config.statistic`` and
+    ``config.threshold``, calibrated on simulated null stars.
+    """
+    model = posterior.model
+    n = model.time.size
+    best = max(posterior.modes, key=lambda m: m.log_posterior)
+    null = posterior.aperiodic
+    k_p, k_a = model.ndim, model.aperiodic().ndim
+    delta_bic = 2.0 * (best.log_likelihood - null.log_likelihood) - (k_p - k_a) * math.log(n)
+    valid = [m.log_evidence for m in posterior.modes if m.laplace.valid]
+    if valid and null.laplace.valid:
+        two_ln_b = 2.0 * (float(special.logsumexp(valid)) - null.log_evidence)
+    else:
+        two_ln_b = math.nan
+    value = delta_bic if config.statistic == "delta_bic" else two_ln_b
+    note = ""
+    if not math.isfinite(value):
+        note = "Laplace evidence unavailable (non-positive-definite Hessian); not detected"
+    detected = bool(math.isfinite(value) and value > config.threshold)
+    return {
+        "detected": detected,
+        "statistic": config.statistic,
+        "value": _num(value),
+        "threshold": config.threshold,
+        "delta_bic": _num(delta_bic),
+        "two_ln_bayes_factor_laplace": _num(two_ln_b),
+        "false_alarm_rate": config.false_alarm_rate,
+        "calibration": config.calibration,
+        "note": note,
+    }
+
+
+def _num(v):
+    v = float(v)
+    return v if math.isfinite(v) else None
+
+
+# ------------------------------------------------------------------------ summary
+@dataclass(frozen=True)
+class StarSummary:
+    """Everything reported for one star (written as ``summary.json``).
+
+    Attributes
+    ----------
+    identifier : str
+    period, amplitude_ppt, coherence_days, coherence_rotations : dict
+        ``median``, ``interval_68``, ``interval_95``, ``map`` (period also
+        ``hdr_68``, ``hdr_95``: lists of [lo, hi] in days).
+    modes : list of dict
+        Every mode found: period, relation to the reported period, log
+        posterior, Laplace log evidence and probability, whether sampled,
+        sampled probability, basin.
+    harmonic : dict
+        See :func:`harmonic_check`.
+    detection : dict
+        See :func:`detection`.
+    detected, converged : bool
+    diagnostics : dict
+        The convergence rule and per-mode diagnostics.
+    nuisance : dict
+        Medians and 68 % intervals of the other parameters.
+    baselines : dict
+        Lomb-Scargle and ACF results and whether they agree with the posterior.
+    extra : dict
+        Provenance added by the pipeline (seconds, config, seed, version, input, derived).
+    """
+
+    identifier: str
+    period: dict
+    amplitude_ppt: dict
+    coherence_days: dict
+    coherence_rotations: dict
+    modes: list
+    harmonic: dict
+    detection: dict
+    detected: bool
+    converged: bool
+    diagnostics: dict
+    nuisance: dict
+    baselines: dict = field(default_factory=dict)
+    extra: dict = field(default_factory=dict)
+
+    def to_dict(self) -> dict:
+        """The JSON document: summary fields, then provenance (``extra``) at the top level."""
+        out = {
+            "identifier": self.identifier,
+            "period": self.period,
+            "amplitude_ppt": self.amplitude_ppt,
+            "coherence_time_days": self.coherence_days,
+            "coherence_time_rotations": self.coherence_rotations,
+            "detected": self.detected,
+            "converged": self.converged,
+            "modes": self.modes,
+            "harmonic": self.harmonic,
+            "detection": self.detection,
+            "diagnostics": self.diagnostics,
+            "nuisance": self.nuisance,
+            "baselines": self.baselines,
+        }
+        out.update(self.extra)
+        return out
+
+
+def _baselines(scan_dict: dict | None, period: dict, config: DetectionConfig) -> dict:
+    if not scan_dict:
+        return {}
+    out = {}
+    lo, hi = period["interval_95"]
+    widen = 1.0 + config.agreement_tolerance
+    for key in ("lomb_scargle", "acf"):
+        block = scan_dict.get(key)
+        if not isinstance(block, dict):
+            continue
+        entry = dict(block)
+        p = block.get("period")
+        if p is not None and np.isfinite(p) and p > 0:
+            entry["agrees_with_posterior"] = bool(lo / widen <= p <= hi * widen)
+            entry["relation_to_posterior"] = relation(
+                float(p), period["median"], config.agreement_tolerance
+            )
+        else:
+            entry["agrees_with_posterior"] = None
+            entry["relation_to_posterior"] = None
+        out[key] = entry
+    return out
+
+
+def summarise(
+    posterior: Posterior, *, identifier: str = "star", config: DetectionConfig | None = None,
+    scan: dict | None = None,
+) -> StarSummary:
+    """Summarise a posterior from :func:`rotinfer.sample.fit`.
+
+    Parameters
+    ----------
+    posterior : Posterior
+    identifier : str
+    config : DetectionConfig, optional
+    scan : dict, optional
+        ``ScanResult.to_dict()`` of the periodogram stage (baselines).
+    """
+    config = config or DetectionConfig()
+    phys = posterior.physical()
+    w = posterior.weights
+    map_phys = posterior.model.physical(posterior.map_theta[None, :])
+    period = _describe(phys["period"], w, map_phys["period"][0], "d")
+    period["hdr_68"] = hdr_intervals(phys["period"], 0.68, w)
+    period["hdr_95"] = hdr_intervals(phys["period"], 0.95, w)
+    amplitude = _describe(phys["amplitude_ppt"], w, map_phys["amplitude_ppt"][0], "ppt")
+    coh_d = _describe(phys["coherence_days"], w, map_phys["coherence_days"][0], "d")
+    coh_r = _describe(
+        phys["coherence_rotations"], w, map_phys["coherence_rotations"][0], "rotations"
+    )
+    units = {
+        "secondary_fraction": "", "background_amplitude_ppt": "ppt",
+        "background_timescale_days": "d", "jitter_ppt": "ppt", "mean": "relative flux",
+    }
+    nuisance = {
+        k: _describe(phys[k], w, map_phys[k][0], units[k]) for k in units if k in phys
+    }
+
+    # the reference for harmonic relations: median period of the most probable sampled mode
+    top = max(range(len(posterior.sampled)), key=lambda k: posterior.sampled[k].probability)
+    in_top = posterior.mode_of_sample == top
+    reference = float(weighted_quantile(phys["period"][in_top], 0.5, w[in_top]))
+
+    valid = [m for m in posterior.modes if m.laplace.valid]
+    lap = {}
+    if valid:
+        log_z = np.array([m.log_evidence for m in valid])
+        lap = {id(m): float(p) for m, p in
+               zip(valid, np.exp(log_z - special.logsumexp(log_z)), strict=True)}
+    sampled = {id(s.mode): s for s in posterior.sampled}
+    modes = []
+    for m in posterior.modes:
+        s = sampled.get(id(m))
+        modes.append({
+            "period": m.period,
+            "relation": relation(m.period, reference, config.harmonic_tolerance),
+            "log_posterior": m.log_posterior,
+            "log_evidence_laplace": _num(m.log_evidence),
+            "laplace_valid": m.laplace.valid,
+            "laplace_note": m.laplace.note,
+            "laplace_probability": lap.get(id(m)),
+            "sampled": s is not None,
+            "probability": s.probability if s is not None else None,
+            "basin": list(s.basin) if s is not None else None,
+            "log_evidence_importance": _num(s.log_evidence) if s is not None else None,
+            "importance_ess": _num(s.importance_ess) if s is not None else None,
+        })
+
+    det = detection(posterior, config)
+    diagnostics = {
+        "rule": CONVERGENCE_RULE,
+        "converged": posterior.converged,
+        "modes": [
+            {"period": s.mode.period, **s.run.diagnostics.to_dict()} for s in posterior.sampled
+        ],
+    }
+    return StarSummary(
+        identifier=identifier, period=period, amplitude_ppt=amplitude, coherence_days=coh_d,
+        coherence_rotations=coh_r, modes=modes,
+        harmonic=harmonic_check(posterior, reference, config), detection=det,
+        detected=det["detected"], converged=posterior.converged, diagnostics=diagnostics,
+        nuisance=nuisance, baselines=_baselines(scan, period, config),
+    )
