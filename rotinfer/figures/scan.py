@@ -1,8 +1,4 @@
-"""Figures. Each function draws one figure from results and returns it; none keeps state.
-
-Figures are drawn on :class:`matplotlib.figure.Figure` objects directly (not through pyplot),
-so they are safe in scripts, servers and worker processes.
-"""
+"""The figure of the classic period searches: light curve, Lomb–Scargle and ACF."""
 
 from __future__ import annotations
 
@@ -10,6 +6,9 @@ from pathlib import Path
 
 import numpy as np
 from matplotlib.figure import Figure
+
+from ._common import probability as _probability
+from ._common import time_label as _time_label
 
 __all__ = ["plot_scan"]
 
@@ -95,15 +94,3 @@ def plot_scan(prepared, result, *, path: str | Path | None = None,
         fig.savefig(path, dpi=120)
     return fig
 
-
-def _time_label(meta) -> str:
-    """Axis label for relative times, naming the reference epoch when one is known."""
-    if meta.time_reference == 0 and meta.time_system in ("", "unknown"):
-        return "Time (d)"
-    system = "" if meta.time_system in ("", "unknown") else f" {meta.time_system}"
-    return f"Time (d after{system} {meta.time_reference:.10g})"
-
-
-def _probability(p: float) -> str:
-    """A probability for display; astropy's Baluev bound underflows to 0 for strong peaks."""
-    return "< 1e-16" if p < 1e-16 else f"{p:.2g}"
