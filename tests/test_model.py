@@ -83,6 +83,20 @@ def test_log_likelihood_matches_dense_multivariate_normal(rng, periodic, backgro
     assert checked == 8
 
 
+def test_log_likelihood_matches_celerite2_gaussian_process(rng):
+    # Reference library: celerite2.GaussianProcess(kernel).compute + log_likelihood, with the
+    # kernel built from celerite2's own RotationTerm and SHOTerm classes (model.kernel).
+    import celerite2
+
+    model = _toy_model(rng, n=400)
+    for theta in model.sample_prior(rng, 10):
+        p = model.unpack(theta)
+        gp = celerite2.GaussianProcess(model.kernel(theta), mean=p["mean"])
+        gp.compute(model.time, diag=model.flux_err**2 + p["jitter"] ** 2)
+        assert model.log_likelihood(theta) == pytest.approx(gp.log_likelihood(model.flux),
+                                                            rel=1e-10)
+
+
 def test_log_prob_is_prior_plus_likelihood(rng):
     model = _toy_model(rng)
     theta = model.sample_prior(rng, 1)[0]

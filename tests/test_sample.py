@@ -184,6 +184,28 @@ def test_rank_normalised_split_rhat_matches_arviz(rng):
         assert ours == pytest.approx(ref, rel=1e-10)
 
 
+def test_autocorr_time_matches_emcee_and_handles_frozen_walkers(rng):
+    # Reference: emcee.autocorr.integrated_time on the same (n_steps, n_walkers, ndim) chain;
+    # AR(1) chains with coefficient 0.9 have tau = (1 + 0.9) / (1 - 0.9) = 19 (analytic).
+    from emcee.autocorr import integrated_time
+
+    from rotinfer.sample.convergence import autocorr_time
+
+    n, w = 4000, 8
+    x = np.zeros((n, w, 2))
+    eps = rng.standard_normal((n, w, 2))
+    for i in range(1, n):
+        x[i] = 0.9 * x[i - 1] + eps[i]
+    ours = autocorr_time(x)
+    assert np.allclose(ours, integrated_time(x, tol=0), rtol=1e-12)
+    assert np.all(np.abs(ours - 19.0) < 0.15 * 19.0)
+    frozen = x.copy()
+    frozen[:, 0, :] = 1.0  # one walker never moves: left out, not NaN
+    assert np.all(np.isfinite(autocorr_time(frozen)))
+    assert np.allclose(autocorr_time(frozen), integrated_time(x[:, 1:], tol=0), rtol=1e-12)
+    assert np.all(np.isinf(autocorr_time(np.ones((100, 4, 2)))))
+
+
 def test_laplace_is_exact_for_a_gaussian():
     # Analytic: for an unnormalised Gaussian exp(c) N(x; MU, COV) the evidence is exp(c)
     # and the Laplace approximation is exact.

@@ -31,7 +31,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from emcee.autocorr import integrated_time
+from emcee.autocorr import auto_window, function_1d
 from scipy import special, stats
 
 __all__ = [
@@ -103,10 +103,28 @@ def autocorr_time(chain: np.ndarray) -> np.ndarray:
 
     Notes
     -----
-    Uses :func:`emcee.autocorr.integrated_time` with ``tol=0`` so that it never
-    raises; whether the chain is long enough is judged separately.
+    Follows :func:`emcee.autocorr.integrated_time` (autocorrelation function
+    averaged over walkers, Sokal's automatic window with c = 5) but leaves out
+    walkers that did not move at all in this stretch of chain (their
+    autocorrelation is undefined; the stuck-walker check reports them). A
+    parameter no walker moved in gets tau = inf. Whether the chain is long enough
+    is judged separately.
     """
-    return np.asarray(integrated_time(chain, c=5, tol=0, quiet=True), dtype=float)
+    n_steps, n_walkers, ndim = chain.shape
+    tau = np.empty(ndim)
+    for d in range(ndim):
+        x = chain[:, :, d]
+        moving = np.ptp(x, axis=0) > 0
+        if not np.any(moving):
+            tau[d] = math.inf
+            continue
+        f = np.zeros(n_steps)
+        for k in np.flatnonzero(moving):
+            f += function_1d(x[:, k])
+        f /= np.count_nonzero(moving)
+        taus = 2.0 * np.cumsum(f) - 1.0
+        tau[d] = taus[auto_window(taus, 5)]
+    return tau
 
 
 def burn_in(chain: np.ndarray, burn_in_tau: float) -> int:
@@ -114,8 +132,10 @@ def burn_in(chain: np.ndarray, burn_in_tau: float) -> int:
     n = chain.shape[0]
     if n < 8:
         return n // 2
-    tau = autocorr_time(chain)
-    return int(min(n // 2, math.ceil(burn_in_tau * float(np.nanmax(tau)))))
+    tau = float(np.max(autocorr_time(chain)))
+    if not math.isfinite(tau):
+        return n // 2
+    return int(min(n // 2, math.ceil(burn_in_tau * tau)))
 
 
 def stuck_walkers(acceptance: np.ndarray, ratio: float) -> np.ndarray:
@@ -196,6 +216,14 @@ class EnsembleDiagnostics:
         accepted : list of ndarray, each (n_walkers,)
             Accepted-proposal counts per walker.
         """
+        with np.errstate(divide="ignore", invalid="ignore"):  # tau may be inf (no movement)
+            return cls._judge(chains, accepted, names=names, check_every=check_every,
+                              tau_multiple=tau_multiple, tau_rtol=tau_rtol, rhat_max=rhat_max,
+                              burn_in_tau=burn_in_tau, stuck_ratio=stuck_ratio)
+
+    @classmethod
+    def _judge(cls, chains, accepted, *, names, check_every, tau_multiple, tau_rtol, rhat_max,
+               burn_in_tau, stuck_ratio):
         n_steps = chains[0].shape[0]
         ndim = chains[0].shape[2]
         burns, taus, taus_prev = [], [], []
