@@ -143,8 +143,8 @@ def _flag_sentences(summary: Mapping[str, Any]) -> list[str]:
         )
     harmonic = summary.get("harmonic") or {}
     if harmonic.get("flag"):
-        p_half = harmonic.get("p_half")
-        p_double = harmonic.get("p_double")
+        p_half = harmonic.get("probability_half")
+        p_double = harmonic.get("probability_double")
         out.append(
             "Harmonic warning: the posterior gives non-negligible probability to a period near "
             f"half (P/2: {_fmt(p_half)}) or double (2P: {_fmt(p_double)}) the reported one. "
@@ -165,9 +165,9 @@ def _summary_rows(summary: Mapping[str, Any]) -> list[tuple[str, str, str, str]]
     rows = []
     for key, label, unit in (
         ("period", "Rotation period", "d"),
-        ("amplitude", "Amplitude", "ppt"),
-        ("coherence_time", "Spot coherence time", "d"),
-        ("coherence_rotations", "Spot coherence time", "rotations"),
+        ("amplitude_ppt", "Amplitude", "ppt"),
+        ("coherence_time_days", "Spot coherence time", "d"),
+        ("coherence_time_rotations", "Spot coherence time", "rotations"),
     ):
         block = summary.get(key)
         if not isinstance(block, Mapping):
@@ -187,18 +187,36 @@ def _table(headers: Iterable[str], rows: Iterable[Iterable[str]]) -> str:
     return f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
 
 
+_PER_PARAMETER = (
+    ("tau_steps", "autocorrelation time [steps]"),
+    ("length_in_tau", "chain length [autocorrelation times]"),
+    ("ess", "effective sample size"),
+    ("rhat", "split R-hat across ensembles"),
+)
+
+
 def _diagnostics_table(diag: Mapping[str, Any]) -> str:
-    per = diag.get("parameters") if isinstance(diag, Mapping) else None
-    if isinstance(per, Mapping) and per:
-        cols = sorted({k for v in per.values() if isinstance(v, Mapping) for k in v})
-        rows = [[html.escape(name)] + [_fmt(v.get(c)) for c in cols]
-                for name, v in per.items() if isinstance(v, Mapping)]
-        table = _table(["parameter", *cols], rows)
-    else:
-        table = ""
-    scalars = [(html.escape(k), _fmt(v)) for k, v in (diag or {}).items()
-               if not isinstance(v, Mapping | list)]
-    return table + (_table(["diagnostic", "value"], scalars) if scalars else "")
+    """The convergence rule in words, then one table per sampled mode."""
+    parts = []
+    if diag.get("rule"):
+        parts.append(f"<p>{html.escape(str(diag['rule']))}</p>")
+    for mode in diag.get("modes") or []:
+        if not isinstance(mode, Mapping):
+            continue
+        head = (f"Mode at {_fmt(mode.get('period'))} d: converged {_yesno(mode.get('converged'))}"
+                f", {_fmt(mode.get('n_steps'))} steps, acceptance fraction "
+                f"{_fmt(mode.get('acceptance_fraction'), 3)}, stuck walkers "
+                f"{_fmt(mode.get('stuck_walkers'))}")
+        reasons = mode.get("reasons") or []
+        if reasons:
+            head += " — " + html.escape("; ".join(str(r) for r in reasons))
+        parts.append(f"<p>{head}</p>")
+        names = list((mode.get("tau_steps") or {}).keys())
+        rows = [[html.escape(n)] + [_fmt((mode.get(key) or {}).get(n)) for key, _ in _PER_PARAMETER]
+                for n in names]
+        if rows:
+            parts.append(_table(["parameter", *[label for _, label in _PER_PARAMETER]], rows))
+    return "".join(parts) or "<p>No diagnostics recorded.</p>"
 
 
 def _pre_json(obj: Any) -> str:
@@ -255,11 +273,12 @@ def write_star_page(folder: str | os.PathLike[str]) -> Path:
     parts.append(_table(["quantity", "median", "68 % interval", "95 % interval"],
                         _summary_rows(s)))
     extra = []
-    for key, label in (("period.hdi_68", "Period 68 % highest-density interval"),
-                       ("period.hdi_95", "Period 95 % highest-density interval")):
-        iv = lookup(s, key)
-        if iv is not None:
-            extra.append([label, _interval(iv, "d")])
+    for key, label in (("period.hdr_68", "Period 68 % highest-density region"),
+                       ("period.hdr_95", "Period 95 % highest-density region")):
+        region = lookup(s, key)
+        if isinstance(region, list) and region:
+            pieces = region if isinstance(region[0], list) else [region]
+            extra.append([label, " ∪ ".join(_interval(iv, "d") for iv in pieces)])
     if _finite(lookup(s, "period.map")):
         extra.append(["Period, maximum a posteriori", f"{_fmt(lookup(s, 'period.map'))} d"])
     if extra:
@@ -283,10 +302,13 @@ def write_star_page(folder: str | os.PathLike[str]) -> Path:
     modes = s.get("modes")
     if isinstance(modes, list) and modes:
         parts.append("<h2>Posterior modes</h2>")
-        cols = sorted({k for m in modes if isinstance(m, Mapping) for k in m
-                       if not isinstance(m[k], Mapping | list)})
-        parts.append(_table(cols, [[_fmt(m.get(c)) for c in cols] for m in modes
-                                   if isinstance(m, Mapping)]))
+        cols = (("period", "period [d]"), ("relation", "relation"),
+                ("sampled", "sampled"), ("probability", "posterior probability"),
+                ("laplace_probability", "Laplace probability"),
+                ("log_posterior", "ln posterior at optimum"), ("laplace_note", "note"))
+        parts.append(_table([label for _, label in cols],
+                            [[_fmt(m.get(c)) for c, _ in cols] for m in modes
+                             if isinstance(m, Mapping)]))
 
     derived = s.get("derived")
     if isinstance(derived, Mapping) and derived:
@@ -312,8 +334,8 @@ def write_star_page(folder: str | os.PathLike[str]) -> Path:
     parts.append(_diagnostics_table(s.get("diagnostics") or {}))
 
     parts.append("<h2>Configuration and provenance</h2>")
-    prov = {k: s.get(k) for k in ("version", "seed", "input", "inputs", "input_sha256",
-                                  "config_hash", "created") if k in s}
+    prov = {k: s.get(k) for k in ("version", "seed", "input", "config_hash", "prepared",
+                                  "samples_file") if k in s}
     parts.append(_pre_json(prov))
     if "config" in s:
         parts.append(_pre_json(s["config"]))
@@ -387,7 +409,7 @@ def write_vetting_page(results: str | os.PathLike[str], *, star_pages: bool = Tr
             _cell(lookup(s, "period.median")),
             _cell(iv68[0] if isinstance(iv68, list) and iv68 else None, _interval(iv68, "")),
             _cell(iv95[0] if isinstance(iv95, list) and iv95 else None, _interval(iv95, "")),
-            _cell(lookup(s, "amplitude.median")),
+            _cell(lookup(s, "amplitude_ppt.median")),
             _cell(s.get("detected"), _yesno(s.get("detected"))),
             _cell(lookup(s, "harmonic.flag"), _yesno(lookup(s, "harmonic.flag"), False)),
             _cell(s.get("converged"), _yesno(s.get("converged"))),

@@ -28,16 +28,23 @@ def _summary(identifier, period, detected=True, converged=True, harmonic=False):
         "identifier": identifier,
         "period": {"median": period, "interval_68": [period * 0.97, period * 1.03],
                    "interval_95": [period * 0.94, period * 1.06], "map": period},
-        "amplitude": {"median": 4.2, "interval_68": [3.9, 4.5], "interval_95": [3.5, 4.9]},
-        "coherence_time": {"median": 30.0, "interval_68": [20.0, 45.0],
-                           "interval_95": [12.0, 70.0]},
+        "amplitude_ppt": {"median": 4.2, "interval_68": [3.9, 4.5], "interval_95": [3.5, 4.9]},
+        "coherence_time_days": {"median": 30.0, "interval_68": [20.0, 45.0],
+                                "interval_95": [12.0, 70.0]},
         "detected": detected,
         "converged": converged,
-        "harmonic": {"flag": harmonic, "p_half": 0.2 if harmonic else 0.0, "p_double": 0.0},
+        "harmonic": {"flag": harmonic, "probability_half": 0.2 if harmonic else 0.0,
+                     "probability_double": 0.0},
         "baselines": {"lomb_scargle": {"period": period / 2, "power": 0.4,
                                        "false_alarm_probability": 1e-30},
                       "acf": {"period": period, "local_peak_height": 0.5, "uncertainty": 0.1}},
-        "diagnostics": {"parameters": {"log_period": {"tau": 40.0, "rhat": 1.003}}},
+        "diagnostics": {"rule": "converged = long chains and R-hat below 1.01",
+                        "modes": [{"period": period, "converged": converged, "n_steps": 900,
+                                   "reasons": [] if converged else ["R-hat 1.2 > 1.01"],
+                                   "tau_steps": {"log_period": 12.0},
+                                   "length_in_tau": {"log_period": 75.0},
+                                   "ess": {"log_period": 800.0},
+                                   "rhat": {"log_period": 1.003}}]},
         "seconds": 12.5,
         "seed": 1,
         "version": "test",
@@ -69,6 +76,7 @@ def test_star_page_is_self_contained_and_explains_flags(tmp_path):
     # Units beside every period and amplitude; flags in words.
     assert "11.3 d" in page and "4.2 ppt" in page
     assert "NOT CONVERGED" in page and "Harmonic warning" in page
+    assert "R-hat 1.2 &gt; 1.01" in page and "split R-hat across ensembles" in page
     # Self-contained: the figure is embedded, and nothing is loaded from the network.
     assert "data:image/png;base64," in page
     assert not re.search(r"(src|href)=['\"]https?://", page)
