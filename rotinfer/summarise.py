@@ -37,6 +37,7 @@ __all__ = [
     "DetectionConfig",
     "StarSummary",
     "detection",
+    "detection_statistics",
     "harmonic_check",
     "hdr_intervals",
     "summarise",
@@ -219,25 +220,49 @@ def harmonic_check(posterior: Posterior, reference: float, config: DetectionConf
 
 
 # --------------------------------------------------------------------- detection
+def detection_statistics(model, modes, aperiodic) -> tuple[float, float]:
+    """The two detection statistics from the optimisation results alone.
+
+    Parameters
+    ----------
+    model : RotationModel
+        The periodic model.
+    modes : sequence of Mode
+        Its modes (:func:`rotinfer.sample.find_modes`).
+    aperiodic : Mode
+        The aperiodic model's maximum (:func:`rotinfer.sample.fit_aperiodic`).
+
+    Returns
+    -------
+    delta_bic, two_ln_bayes_factor : float
+        BIC(aperiodic) - BIC(periodic) at the posterior maxima (Schwarz 1978),
+        and twice the ln ratio of the Laplace evidences, the periodic one summed
+        over modes (NaN when a Laplace estimate is unavailable).
+    """
+    n = model.time.size
+    best = max(modes, key=lambda m: m.log_posterior)
+    k_p, k_a = model.ndim, model.aperiodic().ndim
+    delta_bic = 2.0 * (best.log_likelihood - aperiodic.log_likelihood) - (k_p - k_a) * math.log(n)
+    valid = [m.log_evidence for m in modes if m.laplace.valid]
+    if valid and aperiodic.laplace.valid:
+        two_ln_b = 2.0 * (float(special.logsumexp(valid)) - aperiodic.log_evidence)
+    else:
+        two_ln_b = math.nan
+    return float(delta_bic), float(two_ln_b)
+
+
 def detection(posterior: Posterior, config: DetectionConfig) -> dict:
     """Periodic against aperiodic model: both statistics, and the decision on the configured one.
 
     BIC difference (Schwarz 1978) at the posterior maxima and twice the ln
     Laplace Bayes factor (Kass & Raftery 1995), both positive when the data
-    favour rotation. The decision uses ``config.statistic`` and
-    ``config.threshold``, calibrated on simulated null stars.
+    favour rotation (see :func:`detection_statistics`). The decision uses
+    ``config.statistic`` and ``config.threshold``, calibrated on simulated null
+    stars by ``benchmarks/calibrate_detection.py``.
     """
-    model = posterior.model
-    n = model.time.size
-    best = max(posterior.modes, key=lambda m: m.log_posterior)
-    null = posterior.aperiodic
-    k_p, k_a = model.ndim, model.aperiodic().ndim
-    delta_bic = 2.0 * (best.log_likelihood - null.log_likelihood) - (k_p - k_a) * math.log(n)
-    valid = [m.log_evidence for m in posterior.modes if m.laplace.valid]
-    if valid and null.laplace.valid:
-        two_ln_b = 2.0 * (float(special.logsumexp(valid)) - null.log_evidence)
-    else:
-        two_ln_b = math.nan
+    delta_bic, two_ln_b = detection_statistics(
+        posterior.model, posterior.modes, posterior.aperiodic
+    )
     value = delta_bic if config.statistic == "delta_bic" else two_ln_b
     note = ""
     if not math.isfinite(value):
