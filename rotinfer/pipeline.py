@@ -175,6 +175,43 @@ def write_samples(path: Path, posterior) -> None:
     _write_atomic(path, writer)
 
 
+# Stream of a star's seed reserved for the derived-physics Monte Carlo (so adding stellar
+# parameters never changes the chains).
+DERIVED_STREAM = 0x64657269
+
+
+def derived_block(period, weight, stellar, *, seed: int, relations=None) -> dict:
+    """The ``derived`` block of ``summary.json`` from weighted period draws.
+
+    Parameters
+    ----------
+    period, weight : ndarray, shape (n,)
+        Posterior period draws in days and their weights (each sampled mode carries its
+        probability), as written to ``samples.npz``.
+    stellar : rotinfer.derived.StellarParameters
+    seed : int
+        The star's seed; the Monte Carlo uses its own stream of it.
+    relations : sequence of str, optional
+        Gyrochronology relations (default: all of them).
+
+    Returns
+    -------
+    dict
+        :meth:`rotinfer.derived.DerivedResult.to_dict` plus ``lines`` (printable, with units).
+    """
+    from .derived import DEFAULT_RELATIONS, derive
+
+    period = np.asarray(period, dtype=float)
+    weight = np.asarray(weight, dtype=float)
+    rng = np.random.default_rng(np.random.SeedSequence([int(seed), DERIVED_STREAM]))
+    # Resample with the weights so the whole (multi-modal) posterior is propagated.
+    draws = rng.choice(period, size=period.size, p=weight / weight.sum())
+    result = derive(draws, stellar, rng=rng, relations=tuple(relations or DEFAULT_RELATIONS))
+    block = result.to_dict()
+    block["lines"] = result.lines()
+    return block
+
+
 def analyse_star(
     lc: LightCurve,
     *,
@@ -182,6 +219,8 @@ def analyse_star(
     seed: int = 0,
     out_dir,
     progress: bool = False,
+    stellar=None,
+    relations=None,
 ) -> StarSummary:
     """Prepare, scan, fit and summarise one star, and write its result folder.
 
@@ -200,6 +239,12 @@ def analyse_star(
         is resumed.
     progress : bool
         Show a progress bar of sampler steps (stderr).
+    stellar : rotinfer.derived.StellarParameters, optional
+        Radius, v sin i, colour, mass, Teff with errors; when given, the ``derived``
+        block (equatorial velocity, inclination, gyrochronological ages, Rossby numbers)
+        is computed from the whole period posterior (:func:`derived_block`).
+    relations : sequence of str, optional
+        Gyrochronology relations for the derived block (default: all).
 
     Returns
     -------
@@ -264,6 +309,10 @@ def analyse_star(
         "samples_file": "samples.npz",
         "derived": None,
     }
+    if stellar is not None:
+        physical = posterior.physical()
+        extra["derived"] = derived_block(physical["period"], posterior.weights, stellar,
+                                         seed=seed, relations=relations)
     summary = dataclasses.replace(summary, extra=extra)
     text = json.dumps(_jsonable(summary.to_dict()), indent=2, allow_nan=False)
 

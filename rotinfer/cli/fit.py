@@ -18,6 +18,12 @@ import click
 from ..errors import ConvergenceWarning
 from ._app import cli
 from ._inputs import input_options, reader_kwargs
+from ._stellar import (
+    STELLAR_OPTION_NAMES,
+    relations_from_options,
+    stellar_from_options,
+    stellar_options,
+)
 
 __all__ = ["fit"]
 
@@ -33,6 +39,7 @@ log = logging.getLogger("rotinfer")
 @click.option("--seed", type=int, default=0, show_default=True,
               help="Seed; star number k (0-based, in the order given) uses SEED + k.")
 @input_options
+@stellar_options
 @click.pass_obj
 def fit(settings, files, out_dir, config_path, seed, **opts):
     """Infer the rotation period of each star in FILES with the Gaussian-process model.
@@ -46,6 +53,9 @@ def fit(settings, files, out_dir, config_path, seed, **opts):
     from ..pipeline import analyse_star, load_run_config, star_folder_name
 
     config = load_run_config(config_path)
+    stellar = stellar_from_options(opts)
+    relations = relations_from_options(opts)
+    opts = {k: v for k, v in opts.items() if k not in STELLAR_OPTION_NAMES}
     stars = read_stars(files, **reader_kwargs(opts))
     out = Path(out_dir)
     used: set[str] = set()
@@ -58,7 +68,7 @@ def fit(settings, files, out_dir, config_path, seed, **opts):
             warnings.simplefilter("always", ConvergenceWarning)
             summary = analyse_star(
                 lc, config=config, seed=seed + k, out_dir=out / name,
-                progress=settings.show_progress,
+                progress=settings.show_progress, stellar=stellar, relations=relations,
             )
         for w in caught:
             if issubclass(w.category, ConvergenceWarning):
@@ -78,3 +88,7 @@ def fit(settings, files, out_dir, config_path, seed, **opts):
             f"amplitude {summary.amplitude_ppt['median']:.3g} ppt; {', '.join(flags)}; "
             f"-> {out / name}"
         )
+        derived = (summary.extra or {}).get("derived")
+        if derived:
+            for line in derived.get("lines", []):
+                settings.echo(f"  {line}")
