@@ -176,6 +176,21 @@ class ModelConfig:
             )
 
 
+def _softplus(x: float) -> float:
+    """ln(1 + e^x) without overflow."""
+    if x != x:  # NaN
+        return x
+    return max(x, 0.0) + math.log1p(math.exp(-abs(x)))
+
+
+def _logistic(x: float) -> float:
+    """1 / (1 + e^-x) without overflow."""
+    if x >= 0:
+        return 1.0 / (1.0 + math.exp(-x))
+    e = math.exp(x)
+    return e / (1.0 + e)
+
+
 def quality_from_coherence(rotations):
     """Quality factor Q1 of the mode at P whose damping time is ``rotations`` periods.
 
@@ -205,19 +220,26 @@ class _Prior:
     a: float
     b: float
 
+    def __post_init__(self):
+        # constants of the log density, computed once (the sampler calls logpdf millions
+        # of times)
+        if self.kind == "normal":
+            const = -math.log(self.b) - 0.5 * _LN_2PI
+        elif self.kind == "uniform":
+            const = -math.log(self.b - self.a)
+        else:
+            const = -float(special.betaln(self.a, self.b))
+        object.__setattr__(self, "_const", const)
+
     def logpdf(self, x):
         if self.kind == "normal":
             z = (x - self.a) / self.b
-            return -0.5 * z * z - math.log(self.b) - 0.5 * _LN_2PI
+            return -0.5 * z * z + self._const
         if self.kind == "uniform":
-            if self.a <= x <= self.b:
-                return -math.log(self.b - self.a)
-            return -math.inf
+            return self._const if self.a <= x <= self.b else -math.inf
         # logit-beta: u = logistic(x) ~ Beta(a, b); density in x includes du/dx = u (1 - u)
-        # log u = -log(1 + e^-x), log(1 - u) = -log(1 + e^x)
-        log_u = -np.logaddexp(0.0, -x)
-        log_1mu = -np.logaddexp(0.0, x)
-        return float(self.a * log_u + self.b * log_1mu - special.betaln(self.a, self.b))
+        # log u = -softplus(-x), log(1 - u) = -softplus(x)
+        return -self.a * _softplus(-x) - self.b * _softplus(x) + self._const
 
     def sample(self, rng, size):
         if self.kind == "normal":
@@ -288,6 +310,8 @@ class RotationModel:
         object.__setattr__(self, "_var", e * e)
         object.__setattr__(self, "period_range", (lo, hi))
         object.__setattr__(self, "_priors", self._build_priors())
+        object.__setattr__(self, "_names", tuple(self._priors))
+        object.__setattr__(self, "_prior_list", tuple(self._priors.values()))
         if self.basin is not None:
             blo, bhi = (float(v) for v in self.basin)
             object.__setattr__(self, "basin", (max(blo, lo), min(bhi, hi)))
@@ -360,7 +384,7 @@ class RotationModel:
     @property
     def names(self) -> tuple[str, ...]:
         """Names of the unconstrained parameters, in the order of ``theta``."""
-        return tuple(self._priors)
+        return self._names
 
     @property
     def ndim(self) -> int:
@@ -373,12 +397,12 @@ class RotationModel:
     # --------------------------------------------------------------- transforms
     def unpack(self, theta) -> dict[str, float]:
         """Natural parameters (celerite2's and ours) for one unconstrained vector."""
-        th = dict(zip(self.names, (float(v) for v in theta), strict=True))
+        th = dict(zip(self._names, (float(v) for v in theta), strict=True))
         out: dict[str, float] = {}
         if self.periodic:
             rot = math.exp(th["log_coherence"])
             q1 = 0.5 * math.sqrt(1.0 + (2.0 * math.pi * rot) ** 2)
-            r = special.expit(th["logit_secondary_quality"])
+            r = _logistic(th["logit_secondary_quality"])
             out.update(
                 period=math.exp(th["log_period"]),
                 sigma=math.exp(th["log_amplitude"]),
@@ -386,8 +410,7 @@ class RotationModel:
                 Q1=q1,
                 Q0=r * (q1 - 0.5),
                 dQ=(1.0 - r) * (q1 - 0.5),
-                f=self.config.max_secondary_fraction
-                * special.expit(th["logit_secondary_fraction"]),
+                f=self.config.max_secondary_fraction * _logistic(th["logit_secondary_fraction"]),
             )
         if self.has_background:
             out["background_sigma"] = math.exp(th["log_background_amplitude"])
@@ -482,7 +505,7 @@ class RotationModel:
     def log_prior(self, theta) -> float:
         """Normalised log prior density of the unconstrained vector (``-inf`` outside)."""
         total = 0.0
-        for value, prior in zip(theta, self._priors.values(), strict=True):
+        for value, prior in zip(theta, self._prior_list, strict=True):
             total += prior.logpdf(float(value))
         if self.basin is not None and self.periodic:
             period = math.exp(float(theta[0]))
@@ -511,13 +534,16 @@ class RotationModel:
         if self.has_background:
             w0 = 2.0 * BACKGROUND_Q / p["background_tau"]
             oscillators.append((p["background_sigma"] ** 2 / (w0 * BACKGROUND_Q), w0, BACKGROUND_Q))
-        coef = np.empty((4, len(oscillators)))
-        for j, (s0, w0, q) in enumerate(oscillators):
+        ac, bc, cc, dc = [], [], [], []
+        for s0, w0, q in oscillators:
             fq = math.sqrt(max(4.0 * q * q - 1.0, 1e-5))
             a = s0 * w0 * q
             c = 0.5 * w0 / q
-            coef[:, j] = (a, a / fq, c, c * fq)
-        return coef
+            ac.append(a)
+            bc.append(a / fq)
+            cc.append(c)
+            dc.append(c * fq)
+        return np.array(ac), np.array(bc), np.array(cc), np.array(dc)
 
     def log_likelihood(self, theta) -> float:
         """Gaussian-process log likelihood of the data; ``-inf`` for any non-finite result.
@@ -546,9 +572,7 @@ class RotationModel:
                 d, w = _driver.factor(t, c, a, u, v, a, v.copy())
                 r = (self.flux - p["mean"])[:, None]
                 r = _driver.solve_lower(t, c, u, w, r, r)[:, 0]
-                value = -0.5 * (
-                    float(np.sum(np.log(d))) + n * _LN_2PI + float(np.sum(r * r / d))
-                )
+                value = -0.5 * (float(np.log(d).sum()) + n * _LN_2PI + float((r * r / d).sum()))
         except (ValueError, ArithmeticError, CeleriteLinAlgError):
             # ValueError: bad values reaching the driver; ArithmeticError: float overflow
             # or division by zero while mapping parameters; LinAlgError: a failed
@@ -593,3 +617,5 @@ class RotationModel:
         self.__dict__.update(state)
         object.__setattr__(self, "_var", self.flux_err * self.flux_err)
         object.__setattr__(self, "_priors", self._build_priors())
+        object.__setattr__(self, "_names", tuple(self._priors))
+        object.__setattr__(self, "_prior_list", tuple(self._priors.values()))

@@ -229,8 +229,9 @@ def detection_statistics(model, modes, aperiodic) -> tuple[float, float]:
         The periodic model.
     modes : sequence of Mode
         Its modes (:func:`rotinfer.sample.find_modes`).
-    aperiodic : Mode
-        The aperiodic model's maximum (:func:`rotinfer.sample.fit_aperiodic`).
+    aperiodic : Mode or None
+        The aperiodic model's maximum (:func:`rotinfer.sample.fit_aperiodic`);
+        None gives NaN statistics.
 
     Returns
     -------
@@ -239,6 +240,8 @@ def detection_statistics(model, modes, aperiodic) -> tuple[float, float]:
         and twice the ln ratio of the Laplace evidences, the periodic one summed
         over modes (NaN when a Laplace estimate is unavailable).
     """
+    if aperiodic is None:
+        return math.nan, math.nan
     n = model.time.size
     best = max(modes, key=lambda m: m.log_posterior)
     k_p, k_a = model.ndim, model.aperiodic().ndim
@@ -265,7 +268,9 @@ def detection(posterior: Posterior, config: DetectionConfig) -> dict:
     )
     value = delta_bic if config.statistic == "delta_bic" else two_ln_b
     note = ""
-    if not math.isfinite(value):
+    if posterior.aperiodic is None:
+        note = "aperiodic model not fitted; not detected"
+    elif not math.isfinite(value):
         note = "Laplace evidence unavailable (non-positive-definite Hessian); not detected"
     detected = bool(math.isfinite(value) and value > config.threshold)
     return {

@@ -36,6 +36,7 @@ import emcee
 import numpy as np
 
 from ..errors import ConvergenceWarning
+from ._threads import single_blas_thread
 from .checkpoint import Checkpoint
 from .convergence import EnsembleDiagnostics
 from .settings import SamplerConfig
@@ -152,6 +153,7 @@ def _initial_positions(log_prob, start, covariance, n_walkers, scale, rng, label
     return pos, lp
 
 
+@single_blas_thread
 def run_ensembles(
     log_prob: Callable[[np.ndarray], float],
     start,

@@ -33,6 +33,7 @@ import numpy as np
 from scipy import optimize
 
 from ..model import RotationModel
+from ._threads import single_blas_thread
 from .settings import SamplerConfig
 
 __all__ = ["Laplace", "Mode", "find_modes", "fit_aperiodic", "laplace", "relation"]
@@ -284,6 +285,7 @@ def _optimise_from(model, x0, config):
     return x, lp
 
 
+@single_blas_thread
 def find_modes(
     model: RotationModel, candidate_periods, *, config: SamplerConfig, rng: np.random.Generator
 ) -> tuple[Mode, ...]:
@@ -352,6 +354,7 @@ def find_modes(
     return tuple(modes)
 
 
+@single_blas_thread
 def fit_aperiodic(model: RotationModel, *, config: SamplerConfig) -> Mode:
     """Maximum and Laplace evidence of the aperiodic comparison model (background + noise)."""
     null = model.aperiodic()

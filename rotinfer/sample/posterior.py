@@ -40,6 +40,7 @@ from scipy import special, stats
 
 from ..config import dataclass_to_dict
 from ..model import RotationModel
+from ._threads import single_blas_thread
 from .checkpoint import Checkpoint
 from .ensemble import EnsembleRun, run_ensembles
 from .optimise import Mode, find_modes, fit_aperiodic
@@ -102,8 +103,9 @@ class Posterior:
     modes : tuple of Mode
         Every distinct mode the optimiser found, best first.
     sampled : tuple of SampledMode
-    aperiodic : Mode
-        Maximum and Laplace evidence of the aperiodic comparison model.
+    aperiodic : Mode or None
+        Maximum and Laplace evidence of the aperiodic comparison model (None
+        when not computed).
     converged : bool
         True when every sampled mode met the convergence rule.
     """
@@ -114,7 +116,7 @@ class Posterior:
     mode_of_sample: np.ndarray
     modes: tuple[Mode, ...]
     sampled: tuple[SampledMode, ...]
-    aperiodic: Mode
+    aperiodic: Mode | None
     converged: bool
 
     @property
@@ -152,7 +154,12 @@ def importance_log_evidence(log_prob, draws, *, n: int, rng: np.random.Generator
     """
     draws = np.asarray(draws, dtype=float)
     mu = draws.mean(axis=0)
-    cov = np.cov(draws.T) + 1e-12 * np.eye(draws.shape[1])
+    cov = np.atleast_2d(np.cov(draws.T))
+    # a proposal must be a proper density: raise eigenvalues that are ~0 (a direction
+    # the draws did not explore) to a small fraction of the largest
+    w, v = np.linalg.eigh(0.5 * (cov + cov.T))
+    w = np.maximum(w, 1e-6 * max(float(w.max()), 1e-12))
+    cov = (v * w) @ v.T
     q = stats.multivariate_t(loc=mu, shape=cov, df=4)
     x = np.atleast_2d(q.rvs(size=n, random_state=rng))
     logw = np.array([log_prob(xi) for xi in x]) - q.logpdf(x)
@@ -201,6 +208,7 @@ def _thin(run: EnsembleRun) -> np.ndarray:
     return np.concatenate(parts, axis=0)
 
 
+@single_blas_thread
 def fit(
     model: RotationModel,
     candidates,
@@ -209,6 +217,7 @@ def fit(
     seed: int = 0,
     checkpoint_path=None,
     progress: Callable[[int], None] | None = None,
+    compare_aperiodic: bool = True,
 ) -> Posterior:
     """Find the modes of the rotation posterior, sample the competitive ones, combine them.
 
@@ -225,6 +234,9 @@ def fit(
         HDF5 file for the chains (created, or resumed when it matches this fit).
     progress : callable, optional
         Called with the number of steps completed in each block.
+    compare_aperiodic : bool
+        Also optimise the aperiodic model (needed for the detection test; the
+        calibration runs leave it out).
 
     Returns
     -------
@@ -250,13 +262,13 @@ def fit(
     stored = ckpt.load_json("modes") if ckpt is not None and ckpt.resumed else None
     if stored is not None:
         modes = tuple(Mode.from_dict(d) for d in stored["modes"])
-        aperiodic = Mode.from_dict(stored["aperiodic"])
+        aperiodic = Mode.from_dict(stored["aperiodic"]) if stored["aperiodic"] else None
     else:
         modes = find_modes(model, periods, config=config, rng=np.random.default_rng(child(0)))
-        aperiodic = fit_aperiodic(model, config=config)
+        aperiodic = fit_aperiodic(model, config=config) if compare_aperiodic else None
         if ckpt is not None:
             ckpt.save_json("modes", {"modes": [m.to_dict() for m in modes],
-                                     "aperiodic": aperiodic.to_dict()})
+                                     "aperiodic": aperiodic.to_dict() if aperiodic else None})
     if not modes:
         raise RuntimeError("no finite optimum of the rotation posterior was found")
 
