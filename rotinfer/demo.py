@@ -276,7 +276,9 @@ def run_demo(out: str | Path = "rotinfer-demo", *, seed: int = DEMO_SEED,
     folder = out / _RESULTS / star_folder_name(lc)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", ConvergenceWarning)
-        analyse_star(lc, config=run_config, seed=seed, out_dir=folder, progress=progress)
+        # Figures are drawn below, with the simulated truth marked on them.
+        analyse_star(lc, config=run_config, seed=seed, out_dir=folder, progress=progress,
+                     figures=False)
     notes: list[str] = []
     for w in caught:
         if issubclass(w.category, ConvergenceWarning):

@@ -221,6 +221,7 @@ def analyse_star(
     progress: bool = False,
     stellar=None,
     relations=None,
+    figures: bool = True,
 ) -> StarSummary:
     """Prepare, scan, fit and summarise one star, and write its result folder.
 
@@ -245,6 +246,9 @@ def analyse_star(
         is computed from the whole period posterior (:func:`derived_block`).
     relations : sequence of str, optional
         Gyrochronology relations for the derived block (default: all).
+    figures : bool
+        Also draw the star's figures (summary, scan, corner, traces, thumbnail; see
+        :func:`rotinfer.figures.write_star_figures`) into ``out_dir``.
 
     Returns
     -------
@@ -320,4 +324,8 @@ def analyse_star(
         Path(tmp).write_text(text + "\n")
 
     _write_atomic(out_dir / "summary.json", writer)
+    if figures:
+        from .figures import write_star_figures
+
+        write_star_figures(out_dir, prepared, scan_result, posterior)
     return summary

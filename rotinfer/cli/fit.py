@@ -88,7 +88,14 @@ def fit(settings, files, out_dir, config_path, seed, **opts):
             f"amplitude {summary.amplitude_ppt['median']:.3g} ppt; {', '.join(flags)}; "
             f"-> {out / name}"
         )
+        from ..report import write_star_page
+
+        write_star_page(out / name)
         derived = (summary.extra or {}).get("derived")
         if derived:
             for line in derived.get("lines", []):
                 settings.echo(f"  {line}")
+    if stars:
+        from ..report import write_vetting_page
+
+        write_vetting_page(out, star_pages=False)

@@ -19,8 +19,6 @@ import contextlib
 import ctypes
 import dataclasses
 import datetime as _dt
-import json
-import math
 import os
 import shutil
 import signal
@@ -33,8 +31,6 @@ from collections import Counter
 from collections.abc import Callable
 from pathlib import Path
 
-import numpy as np
-
 from .. import __version__
 from ..errors import InputError
 from .store import ERROR_FILE, MARKER, StarRecord, SurveyStore, fingerprint_inputs, work_hash
@@ -45,7 +41,6 @@ __all__ = ["StarTimeout", "analyse_with_pipeline", "analysis_name", "process_sta
 #: Exit status of a worker process ended because a star ignored its time limit.
 EXIT_HARD_TIMEOUT = 70
 WARNINGS_FILE = "warnings.txt"
-_DERIVED_STREAM = 0x64657269  # "deri": the derived-physics stream of a star's seed
 _MAX_ERROR = 500
 
 
@@ -64,8 +59,9 @@ def analyse_with_pipeline(task: StarTask, *, config, seed: int, out_dir: Path) -
     light curve is given the task's identifier. Warnings raised during the analysis
     (e.g. :class:`~rotinfer.errors.ConvergenceWarning`; the summary also records
     ``converged``) go to ``warnings.txt`` in the star's folder instead of the terminal.
-    When the manifest gave stellar parameters and the pipeline left the ``derived``
-    block empty, :func:`rotinfer.derived.derive` fills it from the period posterior.
+    Stellar parameters from the manifest go to the pipeline's derived-physics stage;
+    the star's HTML page (:func:`rotinfer.report.write_star_page`) is written before
+    the folder is committed, so finished folders are never touched again.
 
     Parameters
     ----------
@@ -79,6 +75,7 @@ def analyse_with_pipeline(task: StarTask, *, config, seed: int, out_dir: Path) -
     """
     from ..io import read_stars
     from ..pipeline import analyse_star
+    from ..report import write_star_page
 
     stars = read_stars(list(task.files), stitch=len(task.files) > 1)
     if len(stars) != 1:
@@ -87,50 +84,17 @@ def analyse_with_pipeline(task: StarTask, *, config, seed: int, out_dir: Path) -
     lc = dataclasses.replace(lc, meta=dataclasses.replace(lc.meta, identifier=task.identifier))
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        analyse_star(lc, config=config, seed=seed, out_dir=out_dir)
+        stellar = None
         if task.stellar:
-            _add_derived(task, seed, Path(out_dir))
+            from ..derived import StellarParameters
+
+            stellar = StellarParameters(**task.stellar_parameters)
+        analyse_star(lc, config=config, seed=seed, out_dir=out_dir, stellar=stellar)
+        write_star_page(out_dir)
     if caught:
         counts = Counter(f"{w.category.__name__}: {w.message}" for w in caught)
         text = "".join(f"{line} ({n} time{'s' if n > 1 else ''})\n" for line, n in counts.items())
         (Path(out_dir) / WARNINGS_FILE).write_text(text, encoding="utf-8")
-
-
-def _add_derived(task: StarTask, seed: int, out_dir: Path) -> None:
-    """Fill ``summary.json``'s ``derived`` block from the period draws and the stellar parameters.
-
-    The draws in ``samples.npz`` carry weights (each mode its probability), so they are
-    resampled with those weights first; the generator is the star's seed on a stream of
-    its own, so the result is reproducible.
-    """
-    from ..derived import StellarParameters, derive
-
-    path = out_dir / "summary.json"
-    summary = json.loads(path.read_text(encoding="utf-8"))
-    if summary.get("derived") is not None:
-        return
-    with np.load(out_dir / "samples.npz") as samples:
-        period = np.asarray(samples["period"], dtype=float)
-        weight = np.asarray(samples["weight"], dtype=float)
-    rng = np.random.default_rng(np.random.SeedSequence([seed, _DERIVED_STREAM]))
-    draws = rng.choice(period, size=period.size, p=weight / weight.sum())
-    result = derive(draws, StellarParameters(**task.stellar_parameters), rng=rng)
-    block = result.to_dict()
-    block["lines"] = result.lines()
-    summary["derived"] = block
-    path.write_text(json.dumps(_finite_json(summary), indent=2, allow_nan=False) + "\n",
-                    encoding="utf-8")
-
-
-def _finite_json(obj):
-    """NaN and infinities become ``null`` (strict JSON)."""
-    if isinstance(obj, dict):
-        return {k: _finite_json(v) for k, v in obj.items()}
-    if isinstance(obj, list | tuple):
-        return [_finite_json(v) for v in obj]
-    if isinstance(obj, float) and not math.isfinite(obj):
-        return None
-    return obj
 
 
 def analysis_name(analyse: Callable) -> str:
@@ -193,16 +157,18 @@ def process_star(
     seed = star_seed(master_seed, task.identifier)
 
     def record(status, failure="", error="", inputs=(), seconds=0.0) -> StarRecord:
+        cpu = time.thread_time() - cpu_start
         return StarRecord(
             identifier=task.identifier, name=task.name, status=status, failure=failure,
             error=error, work_hash=wh, config_hash=config_hash, seed=seed,
             master_seed=int(master_seed), inputs=tuple(inputs), seconds=round(seconds, 3),
+            cpu_seconds=round(cpu, 3),
             finished_utc=_dt.datetime.now(_dt.UTC).isoformat(timespec="seconds"),
             host=socket.gethostname(), pid=os.getpid(), version=__version__,
             run_token=run_token,
         )
 
-    start = time.perf_counter()
+    start, cpu_start = time.perf_counter(), time.thread_time()
 
     def give_up() -> None:
         # The analysis ignored StarTimeout (stuck in compiled code): record and end the process.
