@@ -34,9 +34,9 @@ def snapshot(folder: Path) -> dict[str, tuple[int, int, str]]:
 
 
 def comparable(path: Path) -> Table:
-    """A catalogue without its only run-dependent column (wall time)."""
+    """A catalogue without its run-dependent columns (wall and CPU time)."""
     table = Table.read(path, format="ascii.ecsv")
-    del table["wall_time"]
+    del table["wall_time"], table["cpu_time"]
     return table
 
 

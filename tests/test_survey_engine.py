@@ -41,6 +41,8 @@ def test_catalogue_has_one_row_per_star_with_units_and_provenance(lcs, tmp_path)
     assert t.meta["master_seed"] == 11 and t.meta["n_ok"] == len(NAMES)
     assert t.meta["config_hash"] == result.config_hash and t.meta["rotinfer_version"]
     assert t["period"].unit == "d" and t["wall_time"].unit == "s"
+    # One thread cannot use more CPU time than wall time (rounded to 1 ms).
+    assert np.all((t["cpu_time"] >= 0) & (t["cpu_time"] <= t["wall_time"] + 1e-3))
     assert "68% credible interval" in t["period_lo68"].description
     # Values come from each star's summary.json.
     for row in t:

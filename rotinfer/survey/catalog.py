@@ -98,6 +98,8 @@ CATALOG_COLUMNS: tuple[CatalogColumn, ...] = (
        record="seed"),
     _c("wall_time", "float", "s", "Wall time spent on the star in its worker",
        record="seconds"),
+    _c("cpu_time", "float", "s", "CPU time of the worker thread that ran the star",
+       record="cpu_seconds"),
     _c("folder", "str", None, "Result folder, relative to the survey folder", record="name"),
 )
 

@@ -88,6 +88,9 @@ class StarRecord:
     inputs : tuple of InputFingerprint
     seconds : float
         Wall time spent on the star in the worker (s).
+    cpu_seconds : float
+        CPU time of the worker thread that ran the star (s); below ``seconds`` when the
+        worker had to share its core.
     finished_utc : str
         ISO 8601 time the marker was written.
     host : str
@@ -110,6 +113,7 @@ class StarRecord:
     master_seed: int = 0
     inputs: tuple[InputFingerprint, ...] = field(default=())
     seconds: float = 0.0
+    cpu_seconds: float = 0.0
     finished_utc: str = ""
     host: str = ""
     pid: int = 0
