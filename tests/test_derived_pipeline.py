@@ -14,6 +14,7 @@ import warnings
 import numpy as np
 import pytest
 from astropy import constants, units
+from test_fit_cli import SMALL_TOML  # the same small sampling budget as the fit tests
 
 from rotinfer.cli import main
 from rotinfer.derived import StellarParameters
@@ -21,19 +22,6 @@ from rotinfer.errors import ConvergenceWarning
 from rotinfer.io import write_light_curve
 from rotinfer.pipeline import derived_block
 from rotinfer.simulate import ObservingPattern, StarParameters, simulate_star
-
-SMALL_TOML = """
-[periodogram]
-max_candidates = 2
-
-[sampler]
-n_walkers = 20
-check_every = 50
-max_steps = 100
-starts_per_period = 1
-importance_draws = 100
-max_sampled_modes = 2
-"""
 
 
 def test_block_propagates_weighted_modes():

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..summarise import weighted_quantile  # one convention for bands and intervals
+
 #: Colours used for the posterior period in every figure (band and median line).
 BAND_COLOUR = "C2"
 TRUTH_COLOUR = "C3"
@@ -22,21 +24,6 @@ def time_label(meta) -> str:
 def probability(p: float) -> str:
     """A probability for display; astropy's Baluev bound underflows to 0 for strong peaks."""
     return "< 1e-16" if p < 1e-16 else f"{p:.2g}"
-
-
-def weighted_quantile(values, q, weights=None) -> np.ndarray:
-    """Quantiles ``q`` (in [0, 1]) of weighted draws.
-
-    The same convention as :func:`rotinfer.summarise.weighted_quantile` (the weighted
-    empirical distribution function, interpolated at the midpoints of each draw's
-    weight), so the bands in the figures are the intervals in the summary.
-    """
-    values = np.asarray(values, dtype=float)
-    w = np.ones_like(values) if weights is None else np.asarray(weights, dtype=float)
-    order = np.argsort(values)
-    v, w = values[order], w[order]
-    cdf = (np.cumsum(w) - 0.5 * w) / np.sum(w)
-    return np.interp(np.asarray(q, dtype=float), cdf, v)
 
 
 def posterior_period(posterior) -> tuple[np.ndarray, np.ndarray]:
