@@ -13,9 +13,13 @@ log posterior at the mode, in the unconstrained space where the prior is
 normalised, ln Z ~ ln p(D, theta*) + (d/2) ln 2 pi - (1/2) ln det H. H is
 computed by central finite differences with a step per parameter chosen so
 that the log posterior drops by ~0.1 along it. When H is not positive
-definite the point is not a maximum of the (numerical) posterior; the estimate
-is then reported as unavailable (``laplace_valid=False``, ``log_evidence=nan``)
-rather than patched, and such a mode is ranked by its peak log posterior.
+definite the point is not a maximum of the (numerical) posterior: the
+optimiser is restarted from both sides along the direction of negative
+curvature (twice at most) and a higher point kept. If H is still not positive
+definite the estimate is reported as unavailable (``laplace_valid=False``,
+``log_evidence=nan``) rather than patched, and the mode is ranked by its peak
+log posterior plus the typical Occam term of the valid modes (see
+:attr:`Mode.rank_value`).
 
 References
 ----------
@@ -83,6 +87,7 @@ class Mode:
     log_likelihood: float
     laplace: Laplace
     n_optima: int = 1
+    occam: float = math.nan
 
     @property
     def log_evidence(self) -> float:
@@ -90,8 +95,13 @@ class Mode:
 
     @property
     def rank_value(self) -> float:
-        """Laplace log evidence, or the peak log posterior when Laplace is unavailable."""
-        return self.laplace.log_evidence if self.laplace.valid else self.log_posterior
+        """What modes are ranked by: the Laplace log evidence where it is valid; otherwise
+        the peak log posterior plus ``occam``, the median (ln Z - peak) of the modes whose
+        Laplace estimate is valid (the peak alone would favour such modes unfairly), or
+        the bare peak when no mode has a valid estimate."""
+        if self.laplace.valid:
+            return self.laplace.log_evidence
+        return self.log_posterior + (self.occam if math.isfinite(self.occam) else 0.0)
 
     def to_dict(self) -> dict:
         return {
@@ -104,6 +114,7 @@ class Mode:
             "laplace_note": self.laplace.note,
             "covariance": self.laplace.covariance.tolist(),
             "n_optima": self.n_optima,
+            "occam": self.occam if math.isfinite(self.occam) else None,
         }
 
     @classmethod
@@ -117,6 +128,7 @@ class Mode:
             theta=np.array(d["theta"], dtype=float), period=float(d["period"]),
             log_posterior=float(d["log_posterior"]), log_likelihood=float(d["log_likelihood"]),
             laplace=lap, n_optima=int(d["n_optima"]),
+            occam=float(d["occam"]) if d.get("occam") is not None else math.nan,
         )
 
 
@@ -231,9 +243,16 @@ def _minimise(model, x0, bounds):
 
     best = None
     x = np.clip(x0, [b[0] for b in bounds], [b[1] for b in bounds])
-    for _ in range(2):  # a restart from the first result polishes L-BFGS-B's answer
+    f0 = objective(x)
+    for round_ in range(2):  # a restart from the first result polishes L-BFGS-B's answer
         res = optimize.minimize(objective, x, method="L-BFGS-B", bounds=bounds,
                                 options={"maxiter": 2000, "maxfun": 20000})
+        if round_ == 0 and not res.fun < f0 - 1e-6:
+            # L-BFGS-B made no progress: its finite-difference line search can land only
+            # on points where the likelihood fails (-inf) and then stops where it began.
+            # Powell's derivative-free search gets away from such a start.
+            res = optimize.minimize(objective, x, method="Powell", bounds=bounds,
+                                    options={"maxfev": 20000})
         if best is None or res.fun < best.fun:
             best = res
         x = res.x
@@ -343,15 +362,53 @@ def find_modes(
         else:
             groups.append([lp, x, 1])
 
-    modes = []
+    found = []
     for lp, x, count in groups:
-        lap, _ = laplace(model, x)
-        modes.append(Mode(
-            theta=np.array(x), period=math.exp(x[0]), log_posterior=float(lp),
-            log_likelihood=model.log_likelihood(x), laplace=lap, n_optima=count,
-        ))
+        x, lp, lap = _escape_saddle(model, x, lp, config)
+        found.append((lp, x, count, lap))
+    # an escape can move an optimum onto another mode: merge again, keeping the best
+    found.sort(key=lambda o: -o[0])
+    merged: list[list] = []
+    for lp, x, count, lap in found:
+        for g in merged:
+            if abs(x[0] - g[1][0]) < tol:
+                g[2] += count
+                break
+        else:
+            merged.append([lp, x, count, lap])
+    occams = [lap.log_evidence - lp for lp, _, _, lap in merged if lap.valid]
+    occam = float(np.median(occams)) if occams else math.nan
+    modes = [
+        Mode(theta=np.array(x), period=math.exp(x[0]), log_posterior=float(lp),
+             log_likelihood=model.log_likelihood(x), laplace=lap, n_optima=count,
+             occam=occam)
+        for lp, x, count, lap in merged
+    ]
     modes.sort(key=lambda m: -m.rank_value)
     return tuple(modes)
+
+
+def _escape_saddle(model, x, lp, config, tries: int = 2):
+    """Laplace at an optimum; where the Hessian is not positive definite, re-optimise from
+    points displaced both ways along the direction of negative curvature (the optimiser
+    stopped at a saddle or on a ridge) and keep a higher point if one is found."""
+    lap, hess = laplace(model, x)
+    for _ in range(tries):
+        if lap.valid or not np.all(np.isfinite(hess)):
+            break
+        w, v = np.linalg.eigh(hess)
+        direction = v[:, int(np.argmin(w))]
+        scale = math.sqrt(float(direction @ lap.covariance @ direction))
+        best = None
+        for sign in (1.0, -1.0):
+            x_try, lp_try = _optimise_from(model, x + sign * scale * direction, config)
+            if math.isfinite(lp_try) and (best is None or lp_try > best[1]):
+                best = (x_try, lp_try)
+        if best is None or best[1] <= lp + 1e-6:
+            break
+        x, lp = best
+        lap, hess = laplace(model, x)
+    return x, lp, lap
 
 
 @single_blas_thread
