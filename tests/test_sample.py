@@ -306,3 +306,28 @@ def test_simulation_based_calibration_large():
     result = _sbc(n_replicates=200, n_points=80, steps=1500, seed=7, n_draws=19)
     p, counts = rank_chi2(result.ranks[:, 0], 19, 10)
     assert p > 0.01, counts
+
+
+def test_double_period_trap_is_closed(rng):
+    # The harmonic trap (REFERENCES.md, celerite2 rotation term): a light curve periodic at P
+    # is also periodic at 2P, so a rotation term at 2P with a strong P/2 mode fits it almost
+    # as well. Started at P, 2P and P/2 on a clean, coherent star drawn from the model at P
+    # with a strong P/2 mode (f = 0.8), mode finding must rank P first and any 2P mode far
+    # behind (Bayes factor > e^5). The harmonic error rate on the simulated population is
+    # measured by the benchmarks, not here.
+    from rotinfer.model import RotationModel
+    from rotinfer.sample import find_modes
+
+    t = np.sort(rng.uniform(0.0, 30.0, 300))
+    model = RotationModel(t, np.ones(300), np.full(300, 3e-4), period_range=(0.5, 14.0))
+    truth = model.pack(period=3.0, sigma=3e-3, coherence_rotations=50.0, f=0.8, r=0.5,
+                       background_sigma=2e-4, background_tau=0.3, jitter=1e-4, mean=1.0)
+    import dataclasses
+
+    star = dataclasses.replace(model, flux=model.simulate(truth, rng))
+    modes = find_modes(star, [3.0, 6.0, 1.5], config=SamplerConfig(),
+                       rng=np.random.default_rng(1))
+    assert relation(modes[0].period, 3.0, 0.05) == "P", [m.period for m in modes]
+    doubles = [m for m in modes if relation(m.period, 3.0, 0.05) == "2P"]
+    for m in doubles:
+        assert m.rank_value < modes[0].rank_value - 5.0

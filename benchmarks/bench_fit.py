@@ -1,0 +1,99 @@
+"""Seconds per converged posterior for simulated stars (issue 5 speed targets).
+
+Targets (one core): median <= 60 s for a 27-day 2-min sector (about 19,000 points)
+and <= 120 s for a year at 30-min cadence. Each star is drawn from the simulator's
+population (configs/population.toml) with the requested observing pattern, and
+``analyse_star`` runs with the default configuration (figures off). Wall and CPU
+seconds are both reported: the machine is shared, so wall time overstates the
+single-core cost whenever other work competes for the cores.
+
+Run:  python benchmarks/bench_fit.py [--n 3] [--pattern sector] [--population easy]
+Writes benchmarks/results/fit_<pattern>.md.
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime
+import os
+import platform
+import sys
+import tempfile
+import time
+import warnings
+from pathlib import Path
+
+import numpy as np
+
+
+def main(argv=None):
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--n", type=int, default=3)
+    ap.add_argument("--seed", type=int, default=5)
+    ap.add_argument("--pattern", default="sector", choices=["sector", "year"])
+    ap.add_argument("--population", default="easy")
+    args = ap.parse_args(argv)
+
+    from rotinfer import __version__
+    from rotinfer.errors import ConvergenceWarning
+    from rotinfer.pipeline import RunConfig, analyse_star
+    from rotinfer.simulate import ObservingPattern, draw_population, simulate_star, star_seed
+
+    if args.pattern == "sector":  # 27.4 d at 2-min cadence, two orbits
+        pattern = ObservingPattern.space(1, 27.4, 2.0)
+    else:  # a year at 30-min cadence in four quarters
+        pattern = ObservingPattern.space(4, 91.3, 30.0, orbit_days=30.4, orbit_gap_days=1.0)
+    members = draw_population(None, args.n, seed=args.seed, population=args.population)
+    rows = []
+    for i, (params, _, name) in enumerate(members):
+        sim = simulate_star(params, pattern, seed=star_seed(args.seed, i), name=name)
+        with tempfile.TemporaryDirectory() as tmp, warnings.catch_warnings():
+            warnings.simplefilter("ignore", ConvergenceWarning)
+            w0, c0 = time.perf_counter(), time.process_time()
+            s = analyse_star(sim.lc, config=RunConfig(), seed=i, out_dir=Path(tmp),
+                             figures=False)
+            wall, cpu = time.perf_counter() - w0, time.process_time() - c0
+        d = s.to_dict()
+        truth = (sim.truth.period_min, sim.truth.period_max)
+        rows.append({
+            "name": name, "n_input": len(sim.lc), "n_fit": d["prepared"]["n_points"],
+            "wall": wall, "cpu": cpu, "converged": s.converged,
+            "steps": [m["n_steps"] for m in d["diagnostics"]["modes"]],
+            "period": d["period"]["median"], "truth": truth,
+        })
+        print(rows[-1], flush=True)
+
+    load = os.getloadavg()
+    lines = [
+        f"# Seconds per posterior: {args.pattern} pattern, {args.population} stars",
+        "",
+        f"- date: {datetime.datetime.now(datetime.UTC).strftime('%Y-%m-%d %H:%M UTC')}; "
+        f"machine: {platform.machine()}, {os.cpu_count()} cores shared with other work "
+        f"(load average at the end {load[0]:.1f} / {load[1]:.1f} / {load[2]:.1f})",
+        f"- versions: rotinfer {__version__}, numpy {np.__version__}, Python "
+        f"{sys.version.split()[0]}; population seed {args.seed}; default configuration",
+        "",
+        "| star | points read | points fitted | steps per ensemble (per mode) | converged | "
+        "wall [s] | CPU [s] | period [d] | true range [d] |",
+        "|---|---:|---:|---|---|---:|---:|---:|---|",
+    ]
+    for r in rows:
+        lines.append(
+            f"| {r['name']} | {r['n_input']} | {r['n_fit']} | {r['steps']} | {r['converged']} "
+            f"| {r['wall']:.0f} | {r['cpu']:.0f} | {r['period']:.3f} | "
+            f"{r['truth'][0]:.3f}-{r['truth'][1]:.3f} |"
+        )
+    conv = [r for r in rows if r["converged"]]
+    if conv:
+        wall = np.median([r["wall"] for r in conv])
+        cpu = np.median([r["cpu"] for r in conv])
+        lines += ["", f"Median over converged stars: wall {wall:.0f} s, CPU {cpu:.0f} s "
+                      f"({len(conv)} of {len(rows)} converged)."]
+    out = Path(__file__).parent / "results" / f"fit_{args.pattern}.md"
+    out.parent.mkdir(exist_ok=True)
+    out.write_text("\n".join(lines) + "\n")
+    print("\n".join(lines))
+
+
+if __name__ == "__main__":
+    main()
