@@ -112,8 +112,6 @@ def test_cli_fit_end_to_end_reproducible_and_resumable(tmp_path, star_file, caps
     second = json.loads((tmp_path / "again" / "summary.json").read_text())
     assert _strip(first) == _strip(second)
     assert again.period == summary["period"]
-    other = _quiet(analyse_star, lc, config=config, seed=4, out_dir=tmp_path / "other")
-    assert other.period != summary["period"]
 
     # resume: extending the capped run from its chains.h5 equals a fresh longer run
     longer = load_run_config(cfg, overrides={"sampler": {"max_steps": 150}})
