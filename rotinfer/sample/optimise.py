@@ -315,8 +315,9 @@ def find_modes(
     model : RotationModel
         The periodic model.
     candidate_periods : sequence of float or CandidateSet
-        Start periods in days (a :class:`rotinfer.periodogram.CandidateSet`, or
-        anything with ``.periods()``, is accepted too).
+        Start periods in days; each is used with its half and its double. A
+        :class:`rotinfer.periodogram.CandidateSet` is used as it is, because it
+        already holds the halves and doubles of the periodogram peaks.
     config : SamplerConfig
     rng : Generator
         For starts beyond the fixed ones.
@@ -326,7 +327,13 @@ def find_modes(
     tuple of Mode
         Sorted by decreasing rank value (Laplace log evidence where valid).
     """
-    if hasattr(candidate_periods, "periods"):
+    # A CandidateSet from the periodogram stage already holds the half and the double of
+    # each method's peaks (relation "half"/"double"); plain periods get them added here.
+    factors = (1.0, 0.5, 2.0)
+    if hasattr(candidate_periods, "candidates"):
+        candidate_periods = candidate_periods.periods()
+        factors = (1.0,)
+    elif hasattr(candidate_periods, "periods"):
         candidate_periods = candidate_periods.periods()
     lo, hi = model.period_range
     tol = math.log1p(config.mode_tolerance)
@@ -338,7 +345,7 @@ def find_modes(
             starts.append(p)
 
     for p in candidate_periods:
-        for factor in (1.0, 0.5, 2.0):
+        for factor in factors:
             add(p * factor)
     n_grid = config.grid_periods if starts else max(config.grid_periods, 6)
     if n_grid:

@@ -226,7 +226,8 @@ def fit(
     model : RotationModel
         Periodic model of the star (see :meth:`RotationModel.from_prepared`).
     candidates : sequence of float, or CandidateSet
-        Start periods (days), e.g. ``scan(prepared).candidates``.
+        Start periods (days), e.g. ``scan(prepared).candidates`` (see
+        :func:`~rotinfer.sample.find_modes` for how halves and doubles are added).
     config : SamplerConfig, optional
     seed : int
         Seed of this star; the same seed gives identical results.
@@ -248,9 +249,10 @@ def fit(
         When a mode's ensembles reach ``max_steps`` without converging.
     """
     config = config or SamplerConfig()
-    if hasattr(candidates, "periods"):
-        candidates = candidates.periods()
-    periods = [float(p) for p in candidates]
+    # a CandidateSet goes to find_modes as it is (it already holds halves and doubles)
+    periods = [float(p) for p in (
+        candidates.periods() if hasattr(candidates, "periods") else candidates)]
+    starts = candidates if hasattr(candidates, "candidates") else periods
     root = np.random.SeedSequence(int(seed))
 
     def child(*key):
@@ -264,7 +266,7 @@ def fit(
         modes = tuple(Mode.from_dict(d) for d in stored["modes"])
         aperiodic = Mode.from_dict(stored["aperiodic"]) if stored["aperiodic"] else None
     else:
-        modes = find_modes(model, periods, config=config, rng=np.random.default_rng(child(0)))
+        modes = find_modes(model, starts, config=config, rng=np.random.default_rng(child(0)))
         aperiodic = fit_aperiodic(model, config=config) if compare_aperiodic else None
         if ckpt is not None:
             ckpt.save_json("modes", {"modes": [m.to_dict() for m in modes],
