@@ -32,11 +32,13 @@ def main(argv=None):
     ap.add_argument("--seed", type=int, default=5)
     ap.add_argument("--pattern", default="sector", choices=["sector", "year"])
     ap.add_argument("--population", default="easy")
+    ap.add_argument("--max-points", type=int, default=None,
+                    help="override [prepare] max_points (points the GP sees)")
     args = ap.parse_args(argv)
 
     from rotinfer import __version__
     from rotinfer.errors import ConvergenceWarning
-    from rotinfer.pipeline import RunConfig, analyse_star
+    from rotinfer.pipeline import analyse_star, load_run_config
     from rotinfer.simulate import ObservingPattern, draw_population, simulate_star, star_seed
 
     if args.pattern == "sector":  # 27.4 d at 2-min cadence, two orbits
@@ -44,13 +46,15 @@ def main(argv=None):
     else:  # a year at 30-min cadence in four quarters
         pattern = ObservingPattern.space(4, 91.3, 30.0, orbit_days=30.4, orbit_gap_days=1.0)
     members = draw_population(None, args.n, seed=args.seed, population=args.population)
+    overrides = {"prepare": {"max_points": args.max_points}} if args.max_points else {}
+    config = load_run_config(None, overrides=overrides)
     rows = []
     for i, (params, _, name) in enumerate(members):
         sim = simulate_star(params, pattern, seed=star_seed(args.seed, i), name=name)
         with tempfile.TemporaryDirectory() as tmp, warnings.catch_warnings():
             warnings.simplefilter("ignore", ConvergenceWarning)
             w0, c0 = time.perf_counter(), time.process_time()
-            s = analyse_star(sim.lc, config=RunConfig(), seed=i, out_dir=Path(tmp),
+            s = analyse_star(sim.lc, config=config, seed=i, out_dir=Path(tmp),
                              figures=False)
             wall, cpu = time.perf_counter() - w0, time.process_time() - c0
         d = s.to_dict()
@@ -71,7 +75,8 @@ def main(argv=None):
         f"machine: {platform.machine()}, {os.cpu_count()} cores shared with other work "
         f"(load average at the end {load[0]:.1f} / {load[1]:.1f} / {load[2]:.1f})",
         f"- versions: rotinfer {__version__}, numpy {np.__version__}, Python "
-        f"{sys.version.split()[0]}; population seed {args.seed}; default configuration",
+        f"{sys.version.split()[0]}; population seed {args.seed}; default configuration"
+        + (f" except [prepare] max_points = {args.max_points}" if args.max_points else ""),
         "",
         "| star | points read | points fitted | steps per ensemble (per mode) | converged | "
         "wall [s] | CPU [s] | period [d] | true range [d] |",
@@ -89,7 +94,8 @@ def main(argv=None):
         cpu = np.median([r["cpu"] for r in conv])
         lines += ["", f"Median over converged stars: wall {wall:.0f} s, CPU {cpu:.0f} s "
                       f"({len(conv)} of {len(rows)} converged)."]
-    out = Path(__file__).parent / "results" / f"fit_{args.pattern}.md"
+    suffix = f"_max{args.max_points}" if args.max_points else ""
+    out = Path(__file__).parent / "results" / f"fit_{args.pattern}{suffix}.md"
     out.parent.mkdir(exist_ok=True)
     out.write_text("\n".join(lines) + "\n")
     print("\n".join(lines))

@@ -38,7 +38,7 @@ RESULTS = Path(__file__).parent / "results"
 
 def one_null(args):
     """Detection statistics of null star ``index``; runs in a worker process."""
-    index, seed, config_path, population = args
+    index, seed, config_path, population, max_points = args
     os.environ.setdefault("OMP_NUM_THREADS", "1")
     from rotinfer.model import RotationModel
     from rotinfer.periodogram import scan
@@ -48,7 +48,8 @@ def one_null(args):
     from rotinfer.simulate import draw_population, simulate_star, star_seed
     from rotinfer.summarise import detection_statistics
 
-    cfg = load_run_config(config_path)
+    overrides = {"prepare": {"max_points": max_points}} if max_points else {}
+    cfg = load_run_config(config_path, overrides=overrides)
     params, pattern, name = draw_population(None, index + 1, seed=seed,
                                             population=population)[index]
     t0 = time.perf_counter()
@@ -93,6 +94,8 @@ def main(argv=None):
     ap.add_argument("--population", default="null", help="simulator class (default null)")
     ap.add_argument("--target", type=float, default=0.02, help="false-alarm target (0.02)")
     ap.add_argument("--workers", type=int, default=1, help="worker processes (default 1)")
+    ap.add_argument("--max-points", type=int, default=None,
+                    help="override [prepare] max_points (the threshold depends on it)")
     args = ap.parse_args(argv)
 
     from rotinfer import __version__
@@ -100,12 +103,17 @@ def main(argv=None):
 
     cfg = load_run_config(args.config)
     t0 = time.perf_counter()
-    jobs = [(i, args.seed, args.config, args.population) for i in range(args.n)]
+    jobs = [(i, args.seed, args.config, args.population, args.max_points) for i in range(args.n)]
+    rows = []
     if args.workers > 1:
         with ProcessPoolExecutor(args.workers) as pool:
-            rows = list(pool.map(one_null, jobs))
+            for row in pool.map(one_null, jobs):
+                rows.append(row)
+                print(row, flush=True)
     else:
-        rows = [one_null(j) for j in jobs]
+        for job in jobs:
+            rows.append(one_null(job))
+            print(rows[-1], flush=True)
     wall = time.perf_counter() - t0
 
     out = {}
@@ -138,7 +146,8 @@ def main(argv=None):
         f"{sys.version.split()[0]}",
         f"- stars: {args.n} of the simulator's `{args.population}` class "
         f"(configs/population.toml), population seed {args.seed}; configuration "
-        f"{args.config or 'defaults'}",
+        f"{args.config or 'defaults'}"
+        + (f", [prepare] max_points = {args.max_points}" if args.max_points else ""),
         f"- procedure: prepare, scan, optimise every mode and the aperiodic model, as `rotinfer "
         f"fit` does; target false-alarm rate {args.target:.1%}",
         "",
