@@ -258,7 +258,7 @@ def test_sampler_config_validation():
         SamplerConfig(rhat_max=0.99)
 
 
-def _sbc(n_replicates, n_points, steps, seed, n_draws):
+def _sbc(n_replicates, n_points, steps, seed, n_draws, grid=3):
     from rotinfer.model import ModelConfig, RotationModel
     from rotinfer.sample.sbc import sbc_ranks
 
@@ -267,7 +267,7 @@ def _sbc(n_replicates, n_points, steps, seed, n_draws):
     template = RotationModel(t, np.ones(n_points), np.full(n_points, 1e-3),
                              config=ModelConfig(background=False), period_range=(0.5, 10.0))
     cfg = SamplerConfig(n_walkers=16, check_every=steps, max_steps=steps, starts_per_period=1,
-                        grid_periods=3, importance_draws=100, max_sampled_modes=2)
+                        grid_periods=grid, importance_draws=100, max_sampled_modes=2)
     return sbc_ranks(template, n_replicates=n_replicates, n_draws=n_draws, config=cfg,
                      seed=seed)
 
@@ -292,7 +292,7 @@ def test_simulation_based_calibration_small():
     # chains this catches gross miscalibration only; the slow test is the real check.
     from rotinfer.sample.sbc import rank_chi2
 
-    result = _sbc(n_replicates=15, n_points=30, steps=80, seed=2024, n_draws=14)
+    result = _sbc(n_replicates=15, n_points=25, steps=60, seed=2024, n_draws=14, grid=2)
     p, counts = rank_chi2(result.ranks[:, 0], 14, 3)
     assert p > 0.01, counts
 
