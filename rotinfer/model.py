@@ -16,6 +16,12 @@ The light curve (relative flux, normalised to median 1 per segment by
 * white noise — the per-point variance is ``flux_err**2 + jitter**2``. The
   jitter term is always fitted: it matters most when the input had no
   uncertainties and ``prepare`` had to estimate them from the scatter.
+* The aperiodic *comparison* model (for the detection test) has no rotation
+  term and two background oscillators, so that the question it answers is
+  whether a second variability component is better described as a rotation
+  mode than as a second aperiodic one (with one background term only, a
+  rotation term of low coherence wins on any star whose noise has two
+  timescales, e.g. granulation and slow drifts).
 * ``mean`` — one mean shared by all segments. Preparation has already divided
   each segment by its median, so the segments share a level of 1 by
   construction; a free mean per segment would add parameters that trade off
@@ -43,6 +49,7 @@ sampled parameter           meaning
                             P/2 mode is never more coherent than the mode at P
 ``log_background_amplitude`` ln sigma_bg (relative flux)
 ``log_background_timescale`` ln tau_bg, damping time of the background in days
+``log_background2_*``       second background oscillator (aperiodic model only)
 ``log_jitter``              ln s, extra white noise (relative flux)
 ``mean``                    shared mean level (relative flux)
 ==========================  =====================================================
@@ -269,7 +276,8 @@ class RotationModel:
     period_range : (float, float)
         Period prior limits in days (ignored for the aperiodic model).
     periodic : bool
-        False gives the aperiodic comparison model (background + jitter + mean).
+        False gives the aperiodic comparison model (two background oscillators +
+        jitter + mean).
     source : str
         Name used in error messages.
 
@@ -350,7 +358,7 @@ class RotationModel:
         return replace(self, basin=basin)
 
     def aperiodic(self) -> RotationModel:
-        """The comparison model without a rotation term (background always on)."""
+        """The comparison model: no rotation term, two background oscillators."""
         config = replace(self.config, background=True)
         return replace(self, periodic=False, basin=None, config=config)
 
@@ -365,16 +373,16 @@ class RotationModel:
             pri["log_coherence"] = _Prior("normal", *_lognormal_from_range(*c.coherence_rotations))
             pri["logit_secondary_fraction"] = _Prior("logit-beta", *c.secondary_fraction_beta)
             pri["logit_secondary_quality"] = _Prior("logit-beta", *c.secondary_quality_beta)
+        bg_amp = _lognormal_from_range(
+            c.background_amplitude_ppt[0] * 1e-3, c.background_amplitude_ppt[1] * 1e-3
+        )
+        bg_tau = _lognormal_from_range(*c.background_timescale_days)
         if c.background or not self.periodic:
-            pri["log_background_amplitude"] = _Prior(
-                "normal",
-                *_lognormal_from_range(
-                    c.background_amplitude_ppt[0] * 1e-3, c.background_amplitude_ppt[1] * 1e-3
-                ),
-            )
-            pri["log_background_timescale"] = _Prior(
-                "normal", *_lognormal_from_range(*c.background_timescale_days)
-            )
+            pri["log_background_amplitude"] = _Prior("normal", *bg_amp)
+            pri["log_background_timescale"] = _Prior("normal", *bg_tau)
+        if not self.periodic:
+            pri["log_background2_amplitude"] = _Prior("normal", *bg_amp)
+            pri["log_background2_timescale"] = _Prior("normal", *bg_tau)
         pri["log_jitter"] = _Prior(
             "normal", *_lognormal_from_range(c.jitter_ppt[0] * 1e-3, c.jitter_ppt[1] * 1e-3)
         )
@@ -393,6 +401,10 @@ class RotationModel:
     @property
     def has_background(self) -> bool:
         return "log_background_amplitude" in self._priors
+
+    @property
+    def has_background2(self) -> bool:
+        return "log_background2_amplitude" in self._priors
 
     # --------------------------------------------------------------- transforms
     def unpack(self, theta) -> dict[str, float]:
@@ -415,6 +427,9 @@ class RotationModel:
         if self.has_background:
             out["background_sigma"] = math.exp(th["log_background_amplitude"])
             out["background_tau"] = math.exp(th["log_background_timescale"])
+        if self.has_background2:
+            out["background2_sigma"] = math.exp(th["log_background2_amplitude"])
+            out["background2_tau"] = math.exp(th["log_background2_timescale"])
         out["jitter"] = math.exp(th["log_jitter"])
         out["mean"] = th["mean"]
         return out
@@ -423,7 +438,8 @@ class RotationModel:
         """Unconstrained vector from natural values (inverse of :meth:`unpack`).
 
         Keywords: ``period`` (d), ``sigma``, ``coherence_rotations``, ``f``, ``r``,
-        ``background_sigma``, ``background_tau`` (d), ``jitter``, ``mean``.
+        ``background_sigma``, ``background_tau`` (d), ``background2_sigma``,
+        ``background2_tau`` (d), ``jitter``, ``mean``.
         """
         vals = []
         for name in self.names:
@@ -442,6 +458,10 @@ class RotationModel:
                 vals.append(math.log(natural["background_sigma"]))
             elif name == "log_background_timescale":
                 vals.append(math.log(natural["background_tau"]))
+            elif name == "log_background2_amplitude":
+                vals.append(math.log(natural["background2_sigma"]))
+            elif name == "log_background2_timescale":
+                vals.append(math.log(natural["background2_tau"]))
             elif name == "log_jitter":
                 vals.append(math.log(natural["jitter"]))
             else:
@@ -477,6 +497,9 @@ class RotationModel:
         if self.has_background:
             out["background_amplitude_ppt"] = 1e3 * np.exp(col["log_background_amplitude"])
             out["background_timescale_days"] = np.exp(col["log_background_timescale"])
+        if self.has_background2:
+            out["background2_amplitude_ppt"] = 1e3 * np.exp(col["log_background2_amplitude"])
+            out["background2_timescale_days"] = np.exp(col["log_background2_timescale"])
         out["jitter_ppt"] = 1e3 * np.exp(col["log_jitter"])
         out["mean"] = col["mean"].copy()
         return out
@@ -500,6 +523,12 @@ class RotationModel:
                 Q=BACKGROUND_Q,
             )
             k = bg if k is None else k + bg
+        if self.has_background2:
+            bg2 = terms.SHOTerm(
+                sigma=p["background2_sigma"], w0=2.0 * BACKGROUND_Q / p["background2_tau"],
+                Q=BACKGROUND_Q,
+            )
+            k = k + bg2
         return k
 
     def log_prior(self, theta) -> float:
@@ -534,6 +563,11 @@ class RotationModel:
         if self.has_background:
             w0 = 2.0 * BACKGROUND_Q / p["background_tau"]
             oscillators.append((p["background_sigma"] ** 2 / (w0 * BACKGROUND_Q), w0, BACKGROUND_Q))
+        if self.has_background2:
+            w0 = 2.0 * BACKGROUND_Q / p["background2_tau"]
+            oscillators.append(
+                (p["background2_sigma"] ** 2 / (w0 * BACKGROUND_Q), w0, BACKGROUND_Q)
+            )
         ac, bc, cc, dc = [], [], [], []
         for s0, w0, q in oscillators:
             fq = math.sqrt(max(4.0 * q * q - 1.0, 1e-5))

@@ -50,10 +50,11 @@ def _dense_covariance(model, theta):
         w2 = 8 * np.pi * q2 / (p["period"] * np.sqrt(4 * q2**2 - 1))
         cov += _sho_kernel(lag, amp / (w1 * q1), w1, q1)
         cov += _sho_kernel(lag, p["f"] * amp / (w2 * q2), w2, q2)
-    if model.has_background:
-        q = 1 / np.sqrt(2)
-        w0 = 2 * q / p["background_tau"]
-        cov += _sho_kernel(lag, p["background_sigma"] ** 2 / (w0 * q), w0, q)
+    for key in ("background", "background2"):
+        if key + "_sigma" in p:
+            q = 1 / np.sqrt(2)
+            w0 = 2 * q / p[key + "_tau"]
+            cov += _sho_kernel(lag, p[key + "_sigma"] ** 2 / (w0 * q), w0, q)
     cov[np.diag_indices_from(cov)] += model.flux_err**2 + p["jitter"] ** 2
     return cov, p["mean"]
 
@@ -63,7 +64,8 @@ def _toy_model(rng, n=150, periodic=True, background=True):
     y = 1.0 + 2e-3 * np.sin(2 * np.pi * t / 3.1) + 3e-4 * rng.standard_normal(n)
     err = rng.uniform(2e-4, 4e-4, n)
     cfg = ModelConfig(background=background)
-    return RotationModel(t, y, err, config=cfg, period_range=(0.3, 10.0), periodic=periodic)
+    model = RotationModel(t, y, err, config=cfg, period_range=(0.3, 10.0))
+    return model if periodic else model.aperiodic()
 
 
 @pytest.mark.parametrize("periodic,background", [(True, True), (True, False), (False, True)])

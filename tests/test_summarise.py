@@ -67,8 +67,8 @@ def _posterior(rng, periods_probs, n=4000):
         parts.append(s)
         weights.append(np.full(len(s), prob / len(s)))
         labels.append(np.full(len(s), k))
-    aperiodic = Mode(theta=np.zeros(4), period=math.nan, log_posterior=50.0,
-                     log_likelihood=50.0, laplace=Laplace(45.0, np.eye(4), True))
+    aperiodic = Mode(theta=np.zeros(6), period=math.nan, log_posterior=50.0,
+                     log_likelihood=50.0, laplace=Laplace(45.0, np.eye(6), True))
     return Posterior(model=model, samples=np.concatenate(parts), weights=np.concatenate(weights),
                      mode_of_sample=np.concatenate(labels), modes=tuple(modes),
                      sampled=tuple(sampled), aperiodic=aperiodic, converged=True)
@@ -117,7 +117,7 @@ def test_detection_statistics():
     # BIC = k ln N - 2 ln L (Schwarz 1978): delta = 2 (lnL_p - lnL_a) - (k_p - k_a) ln N.
     post = _posterior(np.random.default_rng(2), [(3.0, 1.0)])
     n = post.model.time.size
-    k_p, k_a = 9, 4
+    k_p, k_a = 9, 6  # periodic: 9 parameters; aperiodic: two backgrounds, jitter, mean
     expected = 2 * (post.modes[0].log_likelihood - post.aperiodic.log_likelihood) - (
         k_p - k_a) * math.log(n)
     det = detection(post, DetectionConfig(threshold=expected - 1))
