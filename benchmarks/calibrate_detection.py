@@ -96,6 +96,9 @@ def main(argv=None):
     ap.add_argument("--workers", type=int, default=1, help="worker processes (default 1)")
     ap.add_argument("--max-points", type=int, default=None,
                     help="override [prepare] max_points (the threshold depends on it)")
+    ap.add_argument("--rows", default=None,
+                    help="summarise the rows of an earlier run's detection_nulls.json instead "
+                         "of fitting again")
     args = ap.parse_args(argv)
 
     from rotinfer import __version__
@@ -105,7 +108,13 @@ def main(argv=None):
     t0 = time.perf_counter()
     jobs = [(i, args.seed, args.config, args.population, args.max_points) for i in range(args.n)]
     rows = []
-    if args.workers > 1:
+    if args.rows:
+        saved = json.loads(Path(args.rows).read_text())
+        rows = saved["rows"]
+        args.seed, args.population = saved["seed"], saved["population"]
+        args.n = len(rows)
+        wall = float(sum(r["seconds"] for r in rows))
+    elif args.workers > 1:
         with ProcessPoolExecutor(args.workers) as pool:
             for row in pool.map(one_null, jobs):
                 rows.append(row)
@@ -114,7 +123,8 @@ def main(argv=None):
         for job in jobs:
             rows.append(one_null(job))
             print(rows[-1], flush=True)
-    wall = time.perf_counter() - t0
+    if not args.rows:
+        wall = time.perf_counter() - t0
 
     out = {}
     for stat in ("delta_bic", "two_ln_bayes_factor_laplace"):
@@ -141,7 +151,8 @@ def main(argv=None):
         "# Detection threshold calibrated on simulated null stars",
         "",
         f"- date: {date}; machine: {platform.machine()}, {os.cpu_count()} cores, shared; "
-        f"wall time {wall:.0f} s with {args.workers} worker(s)",
+        + (f"sum of per-star times {wall:.0f} s (rows from {args.rows})" if args.rows else
+           f"wall time {wall:.0f} s with {args.workers} worker(s)"),
         f"- versions: rotinfer {__version__}, numpy {np.__version__}, Python "
         f"{sys.version.split()[0]}",
         f"- stars: {args.n} of the simulator's `{args.population}` class "
@@ -161,7 +172,20 @@ def main(argv=None):
             f"| {name} | {o['n']} | " + " | ".join(f"{x:.1f}" for x in q)
             + f" | {o['threshold']:.2f} | {o['above']} | {o['rate']:.3f} | {o['upper95']:.3f} |"
         )
-    if stat in out:
+    needed = math.ceil(1.0 / args.target)
+    if stat in out and out[stat]["n"] < needed:
+        o = out[stat]
+        lines += [
+            "",
+            f"With the configured threshold ({o['current_threshold']}) the measured rate on "
+            f"these nulls is {o['current_rate']:.3f} (95 % upper limit "
+            f"{clopper_pearson_upper(round(o['current_rate'] * o['n']), o['n']):.3f}).",
+            "",
+            f"Too few null stars to calibrate a {args.target:.0%} false-alarm rate (at least "
+            f"{needed} are needed to resolve it, a few hundred to pin it down): no threshold is "
+            "recommended; keep the configured one.",
+        ]
+    elif stat in out:
         o = out[stat]
         lines += [
             "",
