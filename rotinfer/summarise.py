@@ -50,7 +50,8 @@ CONVERGENCE_RULE = (
     "length above [sampler] tau_multiple (50) integrated autocorrelation times for every "
     "parameter, autocorrelation times that changed by less than [sampler] tau_rtol between the "
     "last two checks, rank-normalised split R-hat across ensembles below [sampler] rhat_max "
-    "(1.01, Vehtari et al. 2021) for every parameter, and no stuck walkers"
+    "(1.01, Vehtari et al. 2021) for every parameter, and no stuck walkers; all counted after "
+    "a discarded warm-up of [sampler] warmup_steps steps"
 )
 
 

@@ -107,7 +107,9 @@ def test_numpy_global_random_state_is_not_used():
 
 
 def test_resume_from_checkpoint_continues_identically(tmp_path):
-    cfg_short, cfg_long = _small(max_steps=300), _small(max_steps=600)
+    # an unreachable chain length, so that neither run stops early by converging
+    cfg_short = _small(max_steps=300, tau_multiple=1e4)
+    cfg_long = _small(max_steps=600, tau_multiple=1e4)
     with _may_stop_early():
         ref = run_ensembles(gaussian_2d, MU, COV, config=cfg_long, seed=3)
     path = tmp_path / "chains.h5"
@@ -128,15 +130,16 @@ def test_resume_from_checkpoint_continues_identically(tmp_path):
 def test_interrupted_run_resumes_identically(tmp_path):
     # A run killed part-way (here: KeyboardInterrupt from inside the target after some
     # calls) resumes from the last complete block and ends with the same chains as an
-    # uninterrupted run.
-    cfg = _small(max_steps=500)
+    # uninterrupted run (an unreachable chain length keeps both from stopping early).
+    cfg = _small(max_steps=500, tau_multiple=1e4)
+    warmup_calls = 2 * 12 * cfg.warmup_steps
     with _may_stop_early():
         ref = run_ensembles(gaussian_2d, MU, COV, config=cfg, seed=8)
     calls = {"n": 0}
 
     def fragile(x):
         calls["n"] += 1
-        if calls["n"] > 12 * 100 * 3 + 500:  # during the 2nd ensemble's 2nd block
+        if calls["n"] > warmup_calls + 12 * 100 * 3 + 500:  # 2nd ensemble's 2nd block
             raise KeyboardInterrupt
         return gaussian_2d(x)
 
@@ -154,6 +157,49 @@ def test_interrupted_run_resumes_identically(tmp_path):
     for x, y in zip(ref.chains, resumed.chains, strict=True):
         assert np.array_equal(x, y)
     assert ck.stored_steps("g/ensemble0") == ck.stored_steps("g/ensemble1") == 500
+
+
+def test_run_interrupted_during_warmup_resumes_identically(tmp_path):
+    # The warm-up (discarded draws that shape each ensemble's independence proposal) is
+    # checkpointed too: a run stopped inside it resumes to the same chains, and the
+    # returned chains hold only the draws after the warm-up.
+    cfg = _small(max_steps=200, tau_multiple=1e4, warmup_steps=300)
+    with _may_stop_early():
+        ref = run_ensembles(gaussian_2d, MU, COV, config=cfg, seed=4)
+    assert ref.chains[0].shape[0] == 200
+    calls = {"n": 0}
+
+    def fragile(x):
+        calls["n"] += 1
+        if calls["n"] > 2 * 12 + 12 * 100 * 2 + 600:  # ensemble 0's 2nd warm-up block
+            raise KeyboardInterrupt
+        return gaussian_2d(x)
+
+    path = tmp_path / "chains.h5"
+    with pytest.raises(KeyboardInterrupt):
+        run_ensembles(fragile, MU, COV, config=cfg, seed=4,
+                      checkpoint=Checkpoint(path, fingerprint="w"), group="g")
+    ck = Checkpoint(path, fingerprint="w")
+    assert ck.stored_steps("g/warmup0") == ck.stored_steps("g/warmup1") == 100
+    assert ck.stored_steps("g/ensemble0") == 0
+    with _may_stop_early():
+        resumed = run_ensembles(gaussian_2d, MU, COV, config=cfg, seed=4, checkpoint=ck,
+                                group="g")
+    for x, y in zip(ref.chains, resumed.chains, strict=True):
+        assert np.array_equal(x, y)
+    assert ck.stored_steps("g/warmup0") == 300
+
+
+def test_adapted_proposal_follows_the_warmup_draws_not_the_laplace_guess():
+    # Started with a Laplace covariance 100 times too small in one direction, the
+    # sampler must still recover the analytic variance (within 5 Monte Carlo standard
+    # errors, common practice): the refitted proposal and the DE moves repair the guess.
+    bad = np.array([[0.01, 0.0], [0.0, 4.0]])
+    run = run_ensembles(gaussian_2d, MU, bad, config=_small(warmup_steps=200), seed=12)
+    assert run.converged, run.diagnostics.reasons
+    var = run.samples().var(axis=0)
+    ess = run.diagnostics.ess
+    assert np.all(np.abs(var - np.diag(COV)) < 5 * np.diag(COV) * np.sqrt(2 / ess)), var
 
 
 def test_checkpoint_with_other_fingerprint_is_replaced(tmp_path):

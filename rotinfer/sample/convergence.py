@@ -254,11 +254,14 @@ class EnsembleDiagnostics:
 
         reasons = []
         if not np.all(n_tau > tau_multiple):
-            worst = names[int(np.nanargmin(n_tau))]
-            reasons.append(
-                f"chain only {np.nanmin(n_tau):.0f} autocorrelation times long "
-                f"(need {tau_multiple:g}; worst: {worst})"
-            )
+            if np.any(np.isfinite(n_tau)):
+                worst = names[int(np.nanargmin(n_tau))]
+                reasons.append(
+                    f"chain only {np.nanmin(n_tau):.0f} autocorrelation times long "
+                    f"(need {tau_multiple:g}; worst: {worst})"
+                )
+            else:  # very short chains: tau could not be estimated for any parameter
+                reasons.append("autocorrelation time not estimable (chain too short)")
         change = np.abs(tau - tau_prev) / tau
         if not np.all(change < tau_rtol):
             reasons.append(

@@ -153,6 +153,92 @@ def _initial_positions(log_prob, start, covariance, n_walkers, scale, rng, label
     return pos, lp
 
 
+def _adapted(chain, loc, cov):
+    """Centre and covariance of the second half of a warm-up chain (Laplace ones if degenerate)."""
+    draws = chain[chain.shape[0] // 2 :].reshape(-1, chain.shape[2])
+    if draws.shape[0] > 2 * draws.shape[1]:
+        centre = draws.mean(axis=0)
+        spread = np.atleast_2d(np.cov(draws, rowvar=False))
+        if np.all(np.isfinite(spread)) and np.all(np.isfinite(centre)):
+            w = np.linalg.eigvalsh(0.5 * (spread + spread.T))
+            if w[0] > 1e-12 * max(w[-1], 1e-300):
+                return centre, spread
+    return np.asarray(loc, dtype=float), np.asarray(cov, dtype=float)
+
+
+class _Ensembles:
+    """Mutable state of independent ensembles advancing together (optionally checkpointed)."""
+
+    def __init__(self, groups, n_walkers, ndim):
+        self.groups = groups
+        self.shape = (n_walkers, ndim)
+        k = len(groups)
+        self.chains = [np.empty((0, n_walkers, ndim))] * k
+        self.logps = [np.empty((0, n_walkers))] * k
+        self.accepted = [np.zeros(n_walkers, dtype=np.int64)] * k
+        self.coords = [None] * k
+        self.lps = [None] * k
+        self.rstates = [None] * k
+
+    @classmethod
+    def resume(cls, checkpoint, groups, n_walkers, ndim, label):
+        """Ensembles restored from the last block every one of them completed."""
+        self = cls(groups, n_walkers, ndim)
+        if checkpoint is None:
+            return self
+        # an interruption can leave one ensemble a block ahead of another
+        n_resume = min(checkpoint.stored_steps(g) for g in groups)
+        for g in groups:
+            if checkpoint.stored_steps(g) > n_resume:
+                checkpoint.truncate(g, n_resume)
+        if n_resume == 0:
+            return self
+        for e, g in enumerate(groups):
+            saved = checkpoint.load_ensemble(g, n_resume)
+            if saved is None or saved.chain.shape[1:] != self.shape:
+                raise RuntimeError(
+                    f"{label}: checkpoint ensembles do not match this run (walkers or "
+                    "parameters differ); delete the checkpoint file"
+                )
+            self.chains[e] = saved.chain
+            self.logps[e] = saved.log_prob
+            self.accepted[e] = saved.accepted.astype(np.int64)
+            self.coords[e] = saved.chain[-1].copy()
+            self.lps[e] = saved.log_prob[-1].copy()
+            self.rstates[e] = saved.random_state
+        return self
+
+    @property
+    def n_steps(self) -> int:
+        return self.chains[0].shape[0]
+
+    def start_missing(self, make):
+        """Give ensembles without a stored state their start: ``make(e)`` -> (pos, lp, rstate)."""
+        for e in range(len(self.groups)):
+            if self.coords[e] is None:
+                self.coords[e], self.lps[e], self.rstates[e] = make(e)
+
+    def advance(self, log_prob, moves, steps, checkpoint, names):
+        """Run every ensemble ``steps`` steps with its moves; checkpoint each block."""
+        n_walkers, ndim = self.shape
+        for e in range(len(self.groups)):
+            sampler = emcee.EnsembleSampler(n_walkers, ndim, log_prob, moves=moves[e])
+            state = emcee.State(self.coords[e], log_prob=self.lps[e],
+                                random_state=self.rstates[e])
+            final = sampler.run_mcmc(state, steps, skip_initial_state_check=True)
+            block = sampler.get_chain()
+            block_lp = sampler.get_log_prob()
+            self.accepted[e] = self.accepted[e] + sampler.backend.accepted.astype(np.int64)
+            self.chains[e] = np.concatenate([self.chains[e], block], axis=0)
+            self.logps[e] = np.concatenate([self.logps[e], block_lp], axis=0)
+            self.coords[e] = final.coords.copy()
+            self.lps[e] = final.log_prob.copy()
+            self.rstates[e] = sampler.random_state
+            if checkpoint is not None:
+                checkpoint.append(self.groups[e], block, block_lp, self.accepted[e],
+                                  self.rstates[e], names=names)
+
+
 @single_blas_thread
 def run_ensembles(
     log_prob: Callable[[np.ndarray], float],
@@ -207,47 +293,47 @@ def run_ensembles(
     ndim = start.size
     names = tuple(names) if names is not None else tuple(f"x{i}" for i in range(ndim))
     n_walkers = max(config.n_walkers, 2 * ndim + 2)
-    moves = _moves(config.move_weights, start, covariance, config.independence_scale)
+    laplace_moves = _moves(config.move_weights, start, covariance, config.independence_scale)
+    n_ens = config.n_ensembles
 
-    groups = [f"{group}/ensemble{e}" for e in range(config.n_ensembles)]
-    n_resume = 0
-    if checkpoint is not None:
-        # resume from the last block every ensemble completed (an interruption can leave
-        # one ensemble a block ahead of another)
-        n_resume = min(checkpoint.stored_steps(g) for g in groups)
-        for g in groups:
-            if checkpoint.stored_steps(g) > n_resume:
-                checkpoint.truncate(g, n_resume)
-
-    chains, logps, accepted, coords, lps, rstates = [], [], [], [], [], []
-    for e in range(config.n_ensembles):
-        saved = checkpoint.load_ensemble(groups[e], n_resume) if n_resume else None
-        if saved is not None and saved.chain.shape[1:] == (n_walkers, ndim):
-            chains.append(saved.chain)
-            logps.append(saved.log_prob)
-            accepted.append(saved.accepted.astype(np.int64))
-            coords.append(saved.chain[-1].copy())
-            lps.append(saved.log_prob[-1].copy())
-            rstates.append(saved.random_state)
-            continue
+    def fresh(e):
         init_rng = np.random.default_rng(_child(seed_seq, e, 0))
         pos, lp = _initial_positions(
             log_prob, start, covariance, n_walkers, config.init_scale, init_rng, label
         )
-        chains.append(np.empty((0, n_walkers, ndim)))
-        logps.append(np.empty((0, n_walkers)))
-        accepted.append(np.zeros(n_walkers, dtype=np.int64))
-        coords.append(pos)
-        lps.append(lp)
         rs = np.random.RandomState(np.random.MT19937(_child(seed_seq, e, 1)))
-        rstates.append(rs.get_state())
+        return pos, lp, rs.get_state()
 
-    if len({c.shape[0] for c in chains}) != 1:
-        raise RuntimeError(
-            f"{label}: checkpoint ensembles do not match this run (walkers or parameters "
-            "differ); delete the checkpoint file"
+    # Phase 1, warm-up (discarded): the Laplace proposal, then each ensemble's independence
+    # proposal is refitted to the second half of its own warm-up draws (so the ensembles stay
+    # independent) and frozen for the rest of the run, which keeps the sampling exact.
+    n_warm = config.warmup_steps
+    if n_warm > 0:
+        warm = _Ensembles.resume(
+            checkpoint, [f"{group}/warmup{e}" for e in range(n_ens)], n_walkers, ndim, label
         )
+        warm.start_missing(fresh)
+        while warm.n_steps < n_warm:
+            steps = min(config.check_every, n_warm - warm.n_steps)
+            warm.advance(log_prob, [laplace_moves] * n_ens, steps, checkpoint, names)
+            if progress is not None:
+                progress(steps)
+        moves = [
+            _moves(config.move_weights, *_adapted(c, start, covariance), config.adapted_scale)
+            for c in warm.chains
+        ]
 
+        def after_warmup(e):
+            return warm.coords[e].copy(), warm.lps[e].copy(), warm.rstates[e]
+    else:
+        moves = [laplace_moves] * n_ens
+        after_warmup = fresh
+
+    # Phase 2, sampling: blocks of check_every steps until the convergence rule holds or the cap.
+    run = _Ensembles.resume(
+        checkpoint, [f"{group}/ensemble{e}" for e in range(n_ens)], n_walkers, ndim, label
+    )
+    run.start_missing(after_warmup)
     judge_kwargs = dict(
         names=names, check_every=config.check_every, tau_multiple=config.tau_multiple,
         tau_rtol=config.tau_rtol, rhat_max=config.rhat_max, burn_in_tau=config.burn_in_tau,
@@ -255,28 +341,16 @@ def run_ensembles(
     )
     diagnostics = None
     while True:
-        n = chains[0].shape[0]
+        n = run.n_steps
         if n > 0 and (n % config.check_every == 0 or n >= config.max_steps):
-            diagnostics = EnsembleDiagnostics.judge(chains, accepted, **judge_kwargs)
+            diagnostics = EnsembleDiagnostics.judge(run.chains, run.accepted, **judge_kwargs)
             if diagnostics.converged or n >= config.max_steps:
                 break
         steps = min(config.check_every - n % config.check_every, config.max_steps - n)
-        for e in range(config.n_ensembles):
-            sampler = emcee.EnsembleSampler(n_walkers, ndim, log_prob, moves=moves)
-            state = emcee.State(coords[e], log_prob=lps[e], random_state=rstates[e])
-            final = sampler.run_mcmc(state, steps, skip_initial_state_check=n > 0)
-            block = sampler.get_chain()
-            block_lp = sampler.get_log_prob()
-            accepted[e] = accepted[e] + sampler.backend.accepted.astype(np.int64)
-            chains[e] = np.concatenate([chains[e], block], axis=0)
-            logps[e] = np.concatenate([logps[e], block_lp], axis=0)
-            coords[e] = final.coords.copy()
-            lps[e] = final.log_prob.copy()
-            rstates[e] = sampler.random_state
-            if checkpoint is not None:
-                checkpoint.append(groups[e], block, block_lp, accepted[e], rstates[e], names=names)
+        run.advance(log_prob, moves, steps, checkpoint, names)
         if progress is not None:
             progress(steps)
+    chains, logps = run.chains, run.logps
 
     if not diagnostics.converged:
         warnings.warn(

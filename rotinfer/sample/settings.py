@@ -62,6 +62,14 @@ class SamplerConfig:
     independence_scale : float
         The independence proposal is a Student-t (4 degrees of freedom) with this
         times the Laplace covariance.
+    warmup_steps : int
+        Warm-up steps per ensemble (0: no warm-up), discarded; they do not count
+        towards ``max_steps``. After them each ensemble's independence proposal is refitted to
+        the mean and covariance of the second half of its own warm-up draws and
+        frozen, so the sampling that follows is an exact MCMC with a proposal
+        shaped like the posterior rather than like its Laplace approximation.
+    adapted_scale : float
+        The refitted proposal's scale relative to the warm-up covariance.
     importance_draws : int
         Draws for the importance-sampling evidence of each sampled mode (used to
         weight modes when more than one is sampled).
@@ -85,6 +93,8 @@ class SamplerConfig:
     init_scale: float = 0.5
     move_weights: tuple[float, ...] = (0.4, 0.1, 0.0, 0.5)
     independence_scale: float = 1.5
+    warmup_steps: int = 300
+    adapted_scale: float = 1.2
     importance_draws: int = 1000
 
     def __post_init__(self):
@@ -96,10 +106,12 @@ class SamplerConfig:
             if getattr(self, name) < 1:
                 value = getattr(self, name)
                 raise ConfigError(f"[sampler] {name}: must be at least 1, got {value}")
+        if self.warmup_steps < 0:
+            raise ConfigError(f"[sampler] warmup_steps: must be >= 0, got {self.warmup_steps}")
         if self.grid_periods < 0:
             raise ConfigError(f"[sampler] grid_periods: must be >= 0, got {self.grid_periods}")
         for name in ("tau_multiple", "tau_rtol", "burn_in_tau", "init_scale", "mode_tolerance",
-                     "competitive_log_evidence", "independence_scale"):
+                     "competitive_log_evidence", "independence_scale", "adapted_scale"):
             if not getattr(self, name) > 0:
                 raise ConfigError(f"[sampler] {name}: must be positive, got {getattr(self, name)}")
         if not self.period_window > 1:
