@@ -40,6 +40,7 @@ max_sampled_modes = 1
 n_walkers = 16
 check_every = 50
 max_steps = 100
+warmup_steps = 50
 importance_draws = 100
 """
 

@@ -27,6 +27,7 @@ max_candidates = 2
 n_walkers = 20
 check_every = 50
 max_steps = 100
+warmup_steps = 50
 starts_per_period = 1
 importance_draws = 100
 max_sampled_modes = 2
@@ -168,7 +169,7 @@ def test_sun_as_a_star_fast(tmp_path):
     lc = _sun("2002-01-01", "2003-12-31")
     config = load_run_config(None, overrides={
         "periodogram": {"max_candidates": 3},
-        "sampler": {"n_walkers": 20, "check_every": 100, "max_steps": 300,
+        "sampler": {"n_walkers": 20, "check_every": 100, "max_steps": 300, "warmup_steps": 100,
                     "starts_per_period": 1, "importance_draws": 200},
     })
     s = _quiet(analyse_star, lc, config=config, seed=1, out_dir=tmp_path / "sun")

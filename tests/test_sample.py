@@ -313,7 +313,8 @@ def _sbc(n_replicates, n_points, steps, seed, n_draws, grid=3):
     template = RotationModel(t, np.ones(n_points), np.full(n_points, 1e-3),
                              config=ModelConfig(background=False), period_range=(0.5, 10.0))
     cfg = SamplerConfig(n_walkers=16, check_every=steps, max_steps=steps, starts_per_period=1,
-                        grid_periods=grid, importance_draws=100, max_sampled_modes=2)
+                        grid_periods=grid, importance_draws=100, max_sampled_modes=2,
+                        warmup_steps=min(300, steps))
     return sbc_ranks(template, n_replicates=n_replicates, n_draws=n_draws, config=cfg,
                      seed=seed)
 

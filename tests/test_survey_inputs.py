@@ -168,6 +168,18 @@ def test_folder_and_pattern_inputs(tmp_path):
         collect_tasks([tmp_path / "empty"])
 
 
+def test_simulator_output_folder_is_surveyed_without_its_side_tables(tmp_path):
+    # `rotinfer simulate` writes truth.ecsv, flares.ecsv and parameters.ecsv beside the
+    # light curves; pointing a survey at that folder must give one task per star only.
+    from rotinfer.simulate.output import write_population
+
+    write_population(tmp_path / "sim", n=2, seed=3, population="easy", format="csv")
+    tasks = collect_tasks([tmp_path / "sim"])
+    assert [t.identifier for t in tasks] == ["kestrel-00001", "kestrel-00002"]
+    assert [t.identifier for t in collect_tasks([str(tmp_path / "sim" / "*")])] == [
+        "kestrel-00001", "kestrel-00002"]
+
+
 def test_same_stem_in_two_folders_gives_distinct_identifiers(tmp_path):
     write_light_curves(tmp_path / "s14", ["tic1"])
     write_light_curves(tmp_path / "s15", ["tic1"])

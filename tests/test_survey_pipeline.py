@@ -42,6 +42,7 @@ n_walkers = 16
 n_ensembles = 2
 check_every = 100
 max_steps = 200
+warmup_steps = 50
 max_sampled_modes = 1
 starts_per_period = 1
 """

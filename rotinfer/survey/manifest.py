@@ -95,7 +95,9 @@ def _expand(item: str) -> list[Path]:
     path = Path(item).expanduser()
     if path.is_dir():
         found = sorted(
-            p for p in path.iterdir() if p.is_file() and not p.name.startswith(".") and _is_lc(p)
+            p for p in path.iterdir()
+            if p.is_file() and not p.name.startswith(".") and _is_lc(p)
+            and not _is_population_table(p)
         )
         if not found:
             allowed = ", ".join(LIGHT_CURVE_SUFFIXES)
@@ -104,11 +106,31 @@ def _expand(item: str) -> list[Path]:
     if path.is_file():
         return [path]
     if _GLOB_CHARS & set(item):
-        found = sorted(Path(p) for p in glob.glob(os.path.expanduser(item)) if Path(p).is_file())
+        found = sorted(Path(p) for p in glob.glob(os.path.expanduser(item))
+                       if Path(p).is_file() and not _is_population_table(Path(p)))
         if not found:
             raise InputError(item, "pattern matches no files")
         return found
     raise InputError(item, "no such file or folder")
+
+
+def _is_population_table(path: Path) -> bool:
+    """True for the side tables ``rotinfer simulate`` writes beside its light curves
+    (truth, flares, parameters: ECSV whose header metadata names the simulator and the
+    number of stars), so that a folder of simulated stars can be surveyed as it is."""
+    if not path.name.lower().endswith(".ecsv"):
+        return False
+    try:
+        with path.open("r", encoding="utf-8", errors="replace") as f:
+            header = []
+            for line in f:
+                if not line.startswith("#") or len(header) > 500:
+                    break
+                header.append(line)
+    except OSError:
+        return False
+    text = "".join(header)
+    return "rotinfer.simulate" in text and "n_stars:" in text
 
 
 def _is_lc(path: Path) -> bool:
