@@ -1,0 +1,90 @@
+"""Small, fast slices of the validation benchmarks (the full runs are in benchmarks/).
+
+Each slice runs the benchmark script's own code on a few cases so that the scripts keep
+working and their headline checks hold on a sample; thresholds and sources are named
+beside each check.
+"""
+
+from __future__ import annotations
+
+import importlib.util
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+BENCH = Path(__file__).resolve().parents[1] / "benchmarks"
+
+
+def _load(name: str):
+    spec = importlib.util.spec_from_file_location(name, BENCH / f"{name}.py")
+    module = importlib.util.module_from_spec(spec)
+    sys.modules[name] = module
+    spec.loader.exec_module(module)
+    return module
+
+
+TINY = """
+[prepare]
+min_period = 0.8
+bin_fraction = 0.25
+max_points = 400
+[periodogram]
+max_candidates = 2
+[sampler]
+n_walkers = 16
+check_every = 100
+max_steps = 100
+warmup_steps = 50
+max_sampled_modes = 1
+starts_per_period = 1
+importance_draws = 100
+"""
+
+
+def test_injection_recovery_slice(tmp_path):
+    # One star of each class of configs/population.toml through the population benchmark
+    # (simulate, survey, compare with the truth). Inject-and-recover: the easy star's
+    # period must lie within 10 % of its true range (the criterion of Aigrain et al. 2015,
+    # MNRAS 450, 3211, and of the benchmark), and the null star must not be called periodic.
+    bench = _load("bench_population")
+    cfg = tmp_path / "tiny.toml"
+    cfg.write_text(TINY)
+    out = tmp_path / "population.md"
+    rc = bench.main(["--per-class", "1", "--seed", "1", "--workers", "1", "--config", str(cfg),
+                     "--work", str(tmp_path / "work"), "--out", str(out)])
+    assert rc == 0
+    text = out.read_text()
+    assert "stars finished: 4 of 4 simulated" in text
+    rows = {line.split("|")[1].strip(): line for line in text.splitlines()
+            if line.startswith("| ") and not line.startswith("| class")}
+    assert set(rows) == {"easy", "moderate", "hard", "null"}
+    per_star = bench.Table.read(out.with_suffix(".csv"), format="ascii.csv")
+    easy = per_star[per_star["category"] == "easy"][0]
+    assert 0.9 * easy["period_min"] <= easy["period"] <= 1.1 * easy["period_max"], easy
+    null = per_star[per_star["category"] == "null"][0]
+    assert not null["detected"]
+    assert (tmp_path / "population_completeness.png").stat().st_size > 0
+
+
+def test_population_summary_counts_exact_cases():
+    # Exact cases of the recovery criteria (hand-checked).
+    bench = _load("bench_population")
+    lo, hi = np.array([10.0, 10.0, 10.0, 10.0]), np.array([11.0, 11.0, 11.0, 11.0])
+    p = np.array([9.0, 12.1, 5.3, np.nan])
+    assert bench._within(p, lo, hi).tolist() == [True, True, False, False]
+    assert bench._within(p, 0.5 * lo, 0.5 * hi).tolist() == [False, False, True, False]
+    assert bench._overlaps([11.5, 9.0], [12.0, 9.5], 10.0, 11.0).tolist() == [False, False]
+    assert bench._overlaps([10.5], [12.0], 10.0, 11.0).tolist() == [True]
+    # Clopper-Pearson: 0 of 20 gives a one-sided 95 % upper limit 1 - 0.05^(1/20) = 0.139
+    assert bench._upper95(0, 20) == pytest.approx(1 - 0.05 ** (1 / 20), rel=1e-9)
+
+
+def test_dense_likelihood_of_the_scaling_benchmark_matches_celerite2():
+    # The dense reference of benchmarks/bench_scaling.py (SciPy Cholesky) agrees with the
+    # model's celerite2 likelihood to 1e-8 relative (the benchmark's own stop condition).
+    bench = _load("bench_scaling")
+    t, y, err, model, theta = bench._data(600)
+    dense = bench.dense_log_likelihood(model, theta, t, y, err)
+    assert dense == pytest.approx(model.log_likelihood(theta), rel=1e-8)
