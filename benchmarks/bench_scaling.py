@@ -155,9 +155,9 @@ def main(argv=None) -> int:
         f"{os.environ.get('OMP_NUM_THREADS', 'unset')})",
         f"- seed {SEED} + N; uniform random times over 4 years; model: rotation term + "
         "background oscillator + jitter + mean",
-        "- times: median of repeated calls (celerite2: at least 1 s of calls; dense: 3 calls, 1 above 5,000 points);"
-        " the dense log likelihood agreed with celerite2's to 1e-8 relative at every N where"
-        " both ran",
+        "- times: median of repeated calls (celerite2: at least 1 s of calls; dense: 3 calls, "
+        "1 above 5,000 points); the dense log likelihood agreed with celerite2's to 1e-8 "
+        "relative at every N where both ran",
         f"- command: python benchmarks/bench_scaling.py --dense-max {args.dense_max}",
         "",
         "| N points | celerite2 [ms/call] | dense Cholesky [s/call] | dense / celerite2 | "
