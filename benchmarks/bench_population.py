@@ -67,6 +67,7 @@ def _truth(work: Path) -> Table:
         if path.exists():
             t = read_truth_table(path)
             t["name"] = [_identifier(n, cls) for n in t["name"]]
+            t.meta.clear()  # per-class provenance (seeds) would conflict when stacked
             parts.append(t[["name", "category", "spotted", "n_spots", "period_min",
                             "period_max", "period_eq", "amplitude_ppt", "noise_rms_ppt"]])
     from astropy.table import vstack
@@ -122,6 +123,7 @@ def summarise(work: Path, out: Path, figure: Path, header: list[str]) -> str:
     truth = _truth(work)
     cat = catalog[[c for c in catalog.colnames]]
     cat.rename_column("identifier", "name")
+    cat.meta.clear()
     t = join(truth, cat, keys="name", join_type="inner")
     ok = np.array([s == "ok" for s in t["status"]])
     t = t[ok]

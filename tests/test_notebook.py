@@ -34,7 +34,8 @@ def test_tutorial_executes(tmp_path, monkeypatch):
     nb = nbformat.read(NOTEBOOK, as_version=4)
     params = [c for c in nb.cells if "parameters" in c.metadata.get("tags", [])]
     assert len(params) == 1
-    params[0].source = f"SEED = 7\nMAX_STEPS = 100\nWARMUP_STEPS = 50\nOUT = {str(tmp_path / 'out')!r}\n"
+    params[0].source = (f"SEED = 7\nMAX_STEPS = 100\nWARMUP_STEPS = 50\n"
+                        f"OUT = {str(tmp_path / 'out')!r}\n")
     client = NotebookClient(nb, timeout=240, kernel_name="python3",
                             resources={"metadata": {"path": str(tmp_path)}})
     client.execute()
