@@ -4,7 +4,8 @@ Layout of ``chains.h5`` (format ``rotinfer-chains``, version 1)::
 
     /                      attrs: format, format_version, fingerprint
     /json/<key>            attrs["value"]: JSON text (e.g. the modes found by optimisation)
-    /<group>/              one group per sampled mode and ensemble, e.g. "mode0/ensemble1"
+    /<group>/              one group per sampled mode and ensemble, e.g. "mode0/ensemble1",
+                           and one per ensemble's discarded warm-up, e.g. "mode0/warmup1"
         chain              float64 (n_steps, n_walkers, ndim), unconstrained parameters
         log_prob           float64 (n_steps, n_walkers), log posterior of each position
         block_end          int64 (n_blocks,), steps complete at the end of each block

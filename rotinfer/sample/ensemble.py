@@ -10,6 +10,13 @@ trials), and an independence proposal from the Laplace approximation of the
 mode (:class:`IndependenceMove`), which roughly halved the autocorrelation
 time of the rotation posterior in our trials.
 
+A discarded warm-up (``[sampler] warmup_steps``) comes first: after it each
+ensemble's independence proposal is refitted to the mean and covariance of the
+second half of its own warm-up draws and then frozen, so the ensembles stay
+independent and the sampling that follows is an exact MCMC whose proposal is
+shaped like the posterior rather than like its Laplace approximation. The
+warm-up is checkpointed too (groups ``<group>/warmup<e>``).
+
 Randomness: each ensemble gets its own legacy ``RandomState`` (emcee's moves
 draw from the sampler's ``RandomState``, never numpy's global one when its
 state is set explicitly) seeded from a ``SeedSequence`` child of the star's
