@@ -12,7 +12,8 @@ reported, with the [detection] lines to put in the configuration.
 No sampling is needed: both statistics (delta-BIC and the Laplace Bayes factor)
 come from the optimisation (rotinfer.summarise.detection_statistics).
 
-Run:  python benchmarks/calibrate_detection.py --n 200 --seed 1 [--workers 2]
+Run:  python benchmarks/calibrate_detection.py --n 200 --seed 1 [--workers 2] [--log F.jsonl]
+(with --log an interrupted run resumes where it stopped)
 Writes benchmarks/results/detection.md and benchmarks/results/detection_nulls.json.
 """
 
@@ -96,6 +97,9 @@ def main(argv=None):
     ap.add_argument("--workers", type=int, default=1, help="worker processes (default 1)")
     ap.add_argument("--max-points", type=int, default=None,
                     help="override [prepare] max_points (the threshold depends on it)")
+    ap.add_argument("--log", default=None,
+                    help="JSON-lines file: each null's row is appended as it finishes and rows "
+                         "already there are not fitted again (resume an interrupted run)")
     ap.add_argument("--rows", default=None,
                     help="summarise the rows of an earlier run's detection_nulls.json instead "
                          "of fitting again")
@@ -108,6 +112,22 @@ def main(argv=None):
     t0 = time.perf_counter()
     jobs = [(i, args.seed, args.config, args.population, args.max_points) for i in range(args.n)]
     rows = []
+    done = {}
+    if args.log and Path(args.log).exists():
+        for line in Path(args.log).read_text().splitlines():
+            if line.strip():
+                row = json.loads(line)
+                done[row["index"]] = row
+        jobs = [j for j in jobs if j[0] not in done]
+        print(f"resuming: {len(done)} null star(s) already in {args.log}", flush=True)
+
+    def record(row):
+        rows.append(row)
+        print(row, flush=True)
+        if args.log:
+            with open(args.log, "a") as fh:
+                fh.write(json.dumps(row) + "\n")
+
     if args.rows:
         saved = json.loads(Path(args.rows).read_text())
         rows = saved["rows"]
@@ -117,14 +137,15 @@ def main(argv=None):
     elif args.workers > 1:
         with ProcessPoolExecutor(args.workers) as pool:
             for row in pool.map(one_null, jobs):
-                rows.append(row)
-                print(row, flush=True)
+                record(row)
     else:
         for job in jobs:
-            rows.append(one_null(job))
-            print(rows[-1], flush=True)
+            record(one_null(job))
     if not args.rows:
         wall = time.perf_counter() - t0
+        if done:  # earlier sessions' work counts as per-star time, not wall time
+            wall += float(sum(r["seconds"] for r in done.values()))
+        rows = sorted([*done.values(), *rows], key=lambda r: r["index"])
 
     out = {}
     for stat in ("delta_bic", "two_ln_bayes_factor_laplace"):

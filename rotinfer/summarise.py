@@ -48,8 +48,10 @@ __all__ = [
 CONVERGENCE_RULE = (
     "converged = every sampled mode's ensembles (at least two by default) have a post-burn-in "
     "length above [sampler] tau_multiple (50) integrated autocorrelation times for every "
-    "parameter, autocorrelation times that changed by less than [sampler] tau_rtol between the "
-    "last two checks, rank-normalised split R-hat across ensembles below [sampler] rhat_max "
+    "parameter, ensemble-averaged autocorrelation times that changed between the last two "
+    "checks by less than the larger of [sampler] tau_rtol (5 %) and tau_noise_z (3) standard "
+    "errors of that change (Madras & Sokal 1988), rank-normalised split R-hat across "
+    "ensembles below [sampler] rhat_max "
     "(1.01, Vehtari et al. 2021) for every parameter, and no stuck walkers; all counted after "
     "a discarded warm-up of [sampler] warmup_steps steps"
 )

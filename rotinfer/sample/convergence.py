@@ -23,6 +23,9 @@ Vehtari, A., Gelman, A., Simpson, D., Carpenter, B. & Bürkner, P.-C. 2021,
 Bayesian Analysis 16, 667 (rank-normalised split R-hat, folded R-hat; R-hat < 1.01).
 Goodman, J. & Weare, J. 2010, CAMCoS 5, 65; emcee documentation "Autocorrelation
 analysis & convergence" (trust tau only for chains longer than ~50 tau).
+Madras, N. & Sokal, A. D. 1988, J. Stat. Phys. 50, 109 (variance of the windowed
+estimator, var(tau) ~ 2 (2M + 1) tau^2 / N for a window of M lags); Sokal, A. D.
+1997, in Functional Integration (Plenum), 131, eq. 3.19.
 """
 
 from __future__ import annotations
@@ -37,6 +40,7 @@ from scipy import special, stats
 __all__ = [
     "EnsembleDiagnostics",
     "autocorr_time",
+    "autocorr_time_rel_error",
     "burn_in",
     "rank_normalised_split_rhat",
     "stuck_walkers",
@@ -94,12 +98,22 @@ def rank_normalised_split_rhat(chains) -> float:
     return float(max(bulk, tail))
 
 
-def autocorr_time(chain: np.ndarray) -> np.ndarray:
+def autocorr_time(chain: np.ndarray, *, return_window: bool = False):
     """Integrated autocorrelation time (in steps) per parameter of one ensemble.
 
     Parameters
     ----------
     chain : ndarray, shape (n_steps, n_walkers, ndim)
+    return_window : bool
+        Also return, per parameter, the window M (lags summed) and the number of
+        walkers that moved (both needed for the estimator's standard error, see
+        :func:`autocorr_time_rel_error`).
+
+    Returns
+    -------
+    tau : ndarray, shape (ndim,)
+    window, n_moving : ndarray, shape (ndim,)
+        Only with ``return_window``.
 
     Notes
     -----
@@ -112,6 +126,8 @@ def autocorr_time(chain: np.ndarray) -> np.ndarray:
     """
     n_steps, n_walkers, ndim = chain.shape
     tau = np.empty(ndim)
+    window = np.zeros(ndim)
+    n_moving = np.zeros(ndim)
     for d in range(ndim):
         x = chain[:, :, d]
         moving = np.ptp(x, axis=0) > 0
@@ -121,10 +137,42 @@ def autocorr_time(chain: np.ndarray) -> np.ndarray:
         f = np.zeros(n_steps)
         for k in np.flatnonzero(moving):
             f += function_1d(x[:, k])
-        f /= np.count_nonzero(moving)
+        n_moving[d] = np.count_nonzero(moving)
+        f /= n_moving[d]
         taus = 2.0 * np.cumsum(f) - 1.0
-        tau[d] = taus[auto_window(taus, 5)]
+        window[d] = auto_window(taus, 5)
+        tau[d] = taus[int(window[d])]
+    if return_window:
+        return tau, window, n_moving
     return tau
+
+
+def autocorr_time_rel_error(window, n_steps, n_walkers):
+    """Relative standard error of the walker-averaged tau estimate.
+
+    Madras & Sokal (1988) give var(tau) ~ 2 (2M + 1) tau^2 / N for the estimator
+    summed over a window of M lags on one chain of N steps; averaging the
+    autocorrelation function over W walkers is taken to divide the variance by W
+    (walkers of one ensemble are not quite independent, so this is the smaller,
+    stricter end of the estimate).
+
+    Parameters
+    ----------
+    window : array_like
+        Window M in lags (from ``autocorr_time(..., return_window=True)``).
+    n_steps : int
+        Chain length N in steps.
+    n_walkers : array_like
+        Walkers averaged (those that moved).
+
+    Returns
+    -------
+    ndarray
+        Standard error of tau divided by tau.
+    """
+    window = np.asarray(window, dtype=float)
+    n_walkers = np.maximum(np.asarray(n_walkers, dtype=float), 1.0)
+    return np.sqrt(2.0 * (2.0 * window + 1.0) / (max(n_steps, 1) * n_walkers))
 
 
 def burn_in(chain: np.ndarray, burn_in_tau: float) -> int:
@@ -161,6 +209,10 @@ class EnsembleDiagnostics:
         Integrated autocorrelation time per ensemble and parameter (steps).
     tau_previous : ndarray, shape (n_ensembles, ndim)
         The same, estimated one check earlier (NaN at the first check).
+    tau_change : ndarray, shape (ndim,)
+        Relative change of the ensemble-averaged tau since the previous check.
+    tau_change_allowed : ndarray, shape (ndim,)
+        The largest change the stability clause accepts (see :meth:`judge`).
     n_tau : ndarray, shape (ndim,)
         Post-burn-in length in units of tau (the worst ensemble).
     ess : ndarray, shape (ndim,)
@@ -182,6 +234,8 @@ class EnsembleDiagnostics:
     burn_in: tuple[int, ...]
     tau: np.ndarray
     tau_previous: np.ndarray
+    tau_change: np.ndarray
+    tau_change_allowed: np.ndarray
     n_tau: np.ndarray
     ess: np.ndarray
     rhat: np.ndarray
@@ -194,7 +248,7 @@ class EnsembleDiagnostics:
     def judge(
         cls, chains: list[np.ndarray], accepted: list[np.ndarray], *, names, check_every: int,
         tau_multiple: float, tau_rtol: float, rhat_max: float, burn_in_tau: float,
-        stuck_ratio: float,
+        stuck_ratio: float, tau_noise_z: float = 3.0,
     ) -> EnsembleDiagnostics:
         """Compute the diagnostics and the convergence verdict.
 
@@ -202,8 +256,18 @@ class EnsembleDiagnostics:
 
         1. every ensemble's post-burn-in length exceeds ``tau_multiple`` x tau
            for every parameter (emcee's guidance: tau is trustworthy beyond ~50 tau);
-        2. tau has stabilised: it changed by less than ``tau_rtol`` (relative)
-           since the previous check, ``check_every`` steps earlier;
+        2. tau has stabilised: for every parameter the ensemble-averaged tau
+           changed since the previous check (``check_every`` steps earlier, same
+           burn-in) by less than ``max(tau_rtol, tau_noise_z x s)`` (relative),
+           where s is the standard error of that change expected from the
+           estimator's own noise. The two estimates share the first N - D
+           post-burn-in steps (D = ``check_every``); treating tau like a running
+           mean, the change has standard error ``sigma(N) sqrt(D / (N - D))``,
+           with sigma(N) the Madras & Sokal (1988) error of tau on N steps
+           (:func:`autocorr_time_rel_error`), averaged over the ensembles.
+           ``tau_noise_z = 0`` leaves the plain relative tolerance ``tau_rtol``.
+           A tau that keeps growing (chains still finding their way) fails by
+           many standard errors; estimator noise alone fails rarely;
         3. rank-normalised split R-hat across ensembles < ``rhat_max`` for every
            parameter (Vehtari et al. 2021 recommend 1.01);
         4. no stuck walkers (acceptance below ``stuck_ratio`` x the median of
@@ -219,26 +283,36 @@ class EnsembleDiagnostics:
         with np.errstate(divide="ignore", invalid="ignore"):  # tau may be inf (no movement)
             return cls._judge(chains, accepted, names=names, check_every=check_every,
                               tau_multiple=tau_multiple, tau_rtol=tau_rtol, rhat_max=rhat_max,
-                              burn_in_tau=burn_in_tau, stuck_ratio=stuck_ratio)
+                              burn_in_tau=burn_in_tau, stuck_ratio=stuck_ratio,
+                              tau_noise_z=tau_noise_z)
 
     @classmethod
     def _judge(cls, chains, accepted, *, names, check_every, tau_multiple, tau_rtol, rhat_max,
-               burn_in_tau, stuck_ratio):
+               burn_in_tau, stuck_ratio, tau_noise_z):
         n_steps = chains[0].shape[0]
         ndim = chains[0].shape[2]
-        burns, taus, taus_prev = [], [], []
+        burns, taus, taus_prev, change_se = [], [], [], []
         for chain in chains:
             b = burn_in(chain, burn_in_tau)
             burns.append(b)
-            taus.append(autocorr_time(chain[b:]))
-            prev = chain[: n_steps - check_every]
-            if prev.shape[0] >= max(8, check_every):
-                bp = burn_in(prev, burn_in_tau)
-                taus_prev.append(autocorr_time(prev[bp:]))
+            tau_e, window, n_moving = autocorr_time(chain[b:], return_window=True)
+            taus.append(tau_e)
+            post = n_steps - b
+            if post - check_every >= max(8, check_every):
+                # Same burn-in, last check_every steps left out: the change is then the
+                # estimator's response to new draws only.
+                taus_prev.append(autocorr_time(chain[b : n_steps - check_every]))
+                change_se.append(autocorr_time_rel_error(window, post, n_moving)
+                                 * math.sqrt(check_every / (post - check_every)))
             else:
                 taus_prev.append(np.full(ndim, np.nan))
+                change_se.append(np.full(ndim, np.nan))
         tau = np.array(taus)
         tau_prev = np.array(taus_prev)
+        tau_mean = np.mean(tau, axis=0)
+        tau_change = np.abs(tau_mean - np.mean(tau_prev, axis=0)) / tau_mean
+        se = np.sqrt(np.sum(np.array(change_se) ** 2, axis=0)) / len(chains)
+        allowed = np.maximum(tau_rtol, tau_noise_z * se)
         post = np.array([n_steps - b for b in burns], dtype=float)
         n_tau = np.min(post[:, None] / tau, axis=0)
         n_walkers = chains[0].shape[1]
@@ -262,13 +336,16 @@ class EnsembleDiagnostics:
                 )
             else:  # very short chains: tau could not be estimated for any parameter
                 reasons.append("autocorrelation time not estimable (chain too short)")
-        change = np.abs(tau - tau_prev) / tau
-        if not np.all(change < tau_rtol):
-            reasons.append(
-                f"autocorrelation time still changing ({np.nanmax(change) * 100:.0f} % "
-                f"over the last {check_every} steps; need < {tau_rtol * 100:g} %)"
-                if np.all(np.isfinite(change)) else "autocorrelation time not yet estimable twice"
-            )
+        if not np.all(tau_change < allowed):
+            if np.all(np.isfinite(tau_change)) and np.all(np.isfinite(allowed)):
+                worst = int(np.argmax(tau_change / allowed))
+                reasons.append(
+                    f"autocorrelation time still changing ({names[worst]}: "
+                    f"{tau_change[worst] * 100:.0f} % over the last {check_every} steps; "
+                    f"allowed {allowed[worst] * 100:.0f} %)"
+                )
+            else:
+                reasons.append("autocorrelation time not yet estimable twice")
         if not np.all(rhat < rhat_max):
             if np.any(np.isfinite(rhat)):
                 worst = names[int(np.nanargmax(rhat))]
@@ -279,7 +356,8 @@ class EnsembleDiagnostics:
             reasons.append(f"{n_stuck} stuck walker(s)")
         return cls(
             names=tuple(names), n_steps=n_steps, burn_in=tuple(burns), tau=tau,
-            tau_previous=tau_prev, n_tau=n_tau, ess=ess, rhat=rhat, acceptance=acceptance,
+            tau_previous=tau_prev, tau_change=tau_change, tau_change_allowed=allowed,
+            n_tau=n_tau, ess=ess, rhat=rhat, acceptance=acceptance,
             stuck=n_stuck, converged=not reasons, reasons=tuple(reasons),
         )
 
@@ -295,6 +373,8 @@ class EnsembleDiagnostics:
             "burn_in": list(self.burn_in),
             "tau_steps": per_param(np.nanmax(self.tau, axis=0)),
             "length_in_tau": per_param(self.n_tau),
+            "tau_change": per_param(self.tau_change),
+            "tau_change_allowed": per_param(self.tau_change_allowed),
             "ess": per_param(self.ess),
             "rhat": per_param(self.rhat),
             "acceptance_fraction": _num(np.mean(self.acceptance)),

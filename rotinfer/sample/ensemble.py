@@ -344,7 +344,7 @@ def run_ensembles(
     judge_kwargs = dict(
         names=names, check_every=config.check_every, tau_multiple=config.tau_multiple,
         tau_rtol=config.tau_rtol, rhat_max=config.rhat_max, burn_in_tau=config.burn_in_tau,
-        stuck_ratio=config.stuck_ratio,
+        stuck_ratio=config.stuck_ratio, tau_noise_z=config.tau_noise_z,
     )
     diagnostics = None
     while True:

@@ -50,7 +50,10 @@ __all__ = ["Posterior", "SampledMode", "fit", "importance_log_evidence"]
 
 # Sampler settings that do not change the chains (a checkpoint made with other
 # values of these can be resumed, e.g. to extend a run that hit its cap).
-_NOT_IN_FINGERPRINT = ("max_steps", "importance_draws")
+# Settings that do not shape the chains' content (the cap, the evidence draws, the
+# noise allowance of the stability clause, added later) stay out, so a changed value
+# resumes a checkpoint instead of starting over.
+_NOT_IN_FINGERPRINT = ("max_steps", "importance_draws", "tau_noise_z")
 
 
 @dataclass(frozen=True)

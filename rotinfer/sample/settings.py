@@ -45,7 +45,12 @@ class SamplerConfig:
     tau_multiple : float
         Required post-burn-in length in autocorrelation times.
     tau_rtol : float
-        Required stability of tau between checks (relative change).
+        Required stability of tau between checks (relative change), unless the
+        estimator's own noise allows more (``tau_noise_z``).
+    tau_noise_z : float
+        tau counts as stable when its change since the previous check is below
+        ``max(tau_rtol, tau_noise_z x standard error of the change)`` (Madras &
+        Sokal 1988; see :meth:`EnsembleDiagnostics.judge`); 0 = ``tau_rtol`` only.
     rhat_max : float
         R-hat threshold (Vehtari et al. 2021: 1.01).
     burn_in_tau : float
@@ -87,6 +92,7 @@ class SamplerConfig:
     max_steps: int = 20000
     tau_multiple: float = 50.0
     tau_rtol: float = 0.05
+    tau_noise_z: float = 3.0
     rhat_max: float = 1.01
     burn_in_tau: float = 5.0
     stuck_ratio: float = 0.1
@@ -116,6 +122,8 @@ class SamplerConfig:
                 raise ConfigError(f"[sampler] {name}: must be positive, got {getattr(self, name)}")
         if not self.period_window > 1:
             raise ConfigError(f"[sampler] period_window: must exceed 1, got {self.period_window}")
+        if not self.tau_noise_z >= 0:
+            raise ConfigError(f"[sampler] tau_noise_z: must be >= 0, got {self.tau_noise_z}")
         if not self.rhat_max > 1:
             raise ConfigError(f"[sampler] rhat_max: must exceed 1, got {self.rhat_max}")
         if not 0 <= self.stuck_ratio < 1:
