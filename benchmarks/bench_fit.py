@@ -26,6 +26,37 @@ from pathlib import Path
 import numpy as np
 
 
+def make_pattern(kind: str):
+    """The observing pattern of the speed targets: one 2-min sector or a 30-min year."""
+    from rotinfer.simulate import ObservingPattern
+
+    if kind == "sector":  # 27.4 d at 2-min cadence, two orbits
+        return ObservingPattern.space(1, 27.4, 2.0)
+    # a year at 30-min cadence in four quarters
+    return ObservingPattern.space(4, 91.3, 30.0, orbit_days=30.4, orbit_gap_days=1.0)
+
+
+def fit_one(sim, config, *, seed: int) -> dict:
+    """Run the whole fit on a simulated star; seconds, verdict and period against the truth."""
+    from rotinfer.errors import ConvergenceWarning
+    from rotinfer.pipeline import analyse_star
+
+    with tempfile.TemporaryDirectory() as tmp, warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        w0, c0 = time.perf_counter(), time.process_time()
+        s = analyse_star(sim.lc, config=config, seed=seed, out_dir=Path(tmp), figures=False)
+        wall, cpu = time.perf_counter() - w0, time.process_time() - c0
+    d = s.to_dict()
+    return {
+        "name": sim.lc.meta.identifier, "n_input": len(sim.lc),
+        "n_fit": d["prepared"]["n_points"], "wall": wall, "cpu": cpu,
+        "converged": s.converged, "steps": [m["n_steps"] for m in d["diagnostics"]["modes"]],
+        "period": d["period"]["median"], "interval_68": d["period"]["interval_68"],
+        "interval_95": d["period"]["interval_95"], "detected": d["detected"],
+        "truth": (sim.truth.period_min, sim.truth.period_max),
+    }
+
+
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--n", type=int, default=3)
@@ -37,34 +68,17 @@ def main(argv=None):
     args = ap.parse_args(argv)
 
     from rotinfer import __version__
-    from rotinfer.errors import ConvergenceWarning
-    from rotinfer.pipeline import analyse_star, load_run_config
-    from rotinfer.simulate import ObservingPattern, draw_population, simulate_star, star_seed
+    from rotinfer.pipeline import load_run_config
+    from rotinfer.simulate import draw_population, simulate_star, star_seed
 
-    if args.pattern == "sector":  # 27.4 d at 2-min cadence, two orbits
-        pattern = ObservingPattern.space(1, 27.4, 2.0)
-    else:  # a year at 30-min cadence in four quarters
-        pattern = ObservingPattern.space(4, 91.3, 30.0, orbit_days=30.4, orbit_gap_days=1.0)
+    pattern = make_pattern(args.pattern)
     members = draw_population(None, args.n, seed=args.seed, population=args.population)
     overrides = {"prepare": {"max_points": args.max_points}} if args.max_points else {}
     config = load_run_config(None, overrides=overrides)
     rows = []
     for i, (params, _, name) in enumerate(members):
         sim = simulate_star(params, pattern, seed=star_seed(args.seed, i), name=name)
-        with tempfile.TemporaryDirectory() as tmp, warnings.catch_warnings():
-            warnings.simplefilter("ignore", ConvergenceWarning)
-            w0, c0 = time.perf_counter(), time.process_time()
-            s = analyse_star(sim.lc, config=config, seed=i, out_dir=Path(tmp),
-                             figures=False)
-            wall, cpu = time.perf_counter() - w0, time.process_time() - c0
-        d = s.to_dict()
-        truth = (sim.truth.period_min, sim.truth.period_max)
-        rows.append({
-            "name": name, "n_input": len(sim.lc), "n_fit": d["prepared"]["n_points"],
-            "wall": wall, "cpu": cpu, "converged": s.converged,
-            "steps": [m["n_steps"] for m in d["diagnostics"]["modes"]],
-            "period": d["period"]["median"], "truth": truth,
-        })
+        rows.append(fit_one(sim, config, seed=i))
         print(rows[-1], flush=True)
 
     load = os.getloadavg()
