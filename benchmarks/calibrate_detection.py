@@ -223,6 +223,19 @@ def main(argv=None):
             f'seed {args.seed}, {date}; 95 % upper limit {o["upper95"]:.3f}"',
             "```",
         ]
+    # Where the false alarms come from: per observing pattern, at the configured threshold.
+    if stat in out:
+        current = out[stat]["current_threshold"]
+        lines += ["", f"By observing pattern, at the configured threshold ({current:g}):", "",
+                  "| pattern | nulls | called periodic | their best periods [d] (points fitted) "
+                  "| median s |",
+                  "|---|---:|---:|---|---:|"]
+        for kind in sorted({r["pattern"] for r in rows}):
+            sel = [r for r in rows if r["pattern"] == kind and r[stat] is not None]
+            hits = [r for r in sel if r[stat] > current]
+            periods = ", ".join(f"{r['best_period']:.1f} ({r['n_points']})" for r in hits) or "-"
+            lines.append(f"| {kind} | {len(sel)} | {len(hits)} | {periods} | "
+                         f"{np.median([r['seconds'] for r in sel]):.0f} |")
     text = "\n".join(lines) + "\n"
     (RESULTS / "detection.md").write_text(text)
     print(text)
