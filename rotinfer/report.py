@@ -126,13 +126,13 @@ def _flag_sentences(summary: Mapping[str, Any]) -> list[str]:
     if detected is False:
         out.append(
             "No rotation signal: the periodic model is not preferred over the aperiodic one "
-            "at the calibrated threshold. The period posterior below is what the periodic model "
+            "at the configured threshold. The period posterior below is what the periodic model "
             "would say if forced; do not publish it as a detection."
         )
     elif detected:
         fap = lookup(summary, "detection.false_alarm_rate")
-        extra = f" (calibrated false-alarm rate on simulated null stars: {_fmt(fap)})" if \
-            _finite(fap) else ""
+        extra = f" (false-alarm rate at this threshold on simulated null stars: {_fmt(fap)})" \
+            if _finite(fap) else ""
         out.append("A rotation signal is detected" + extra + ".")
     if summary.get("converged") is False:
         out.append(

@@ -37,12 +37,17 @@ def headline(result) -> list[str]:
         f"  period:       {p.get('median', float('nan')):.4g} d "
         f"(68 % interval {lo:.4g}-{hi:.4g} d); truth {truth.period_eq:g} d",
         f"  baselines:    Lomb-Scargle {_num(ls)} d, ACF {_num(acf)} d",
-        f"  detected:     {_yes(s.get('detected'))}",
+        f"  detected:     {_yes(s.get('detected'))}{_false_alarm(s)}",
         f"  converged:    {_yes(s.get('converged'))}",
         f"  harmonic warning: {_yes(harmonic)}",
         f"  took {result.seconds:.0f} s",
     ]
     return lines
+
+
+def _false_alarm(summary) -> str:
+    rate = (summary.get("detection") or {}).get("false_alarm_rate")
+    return "" if rate is None else f" (false-alarm rate on simulated null stars: {rate:g})"
 
 
 def _num(value) -> str:

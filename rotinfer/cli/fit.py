@@ -77,7 +77,10 @@ def fit(settings, files, out_dir, config_path, seed, **opts):
                 warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
         p = summary.period
         flags = [
-            "detected" if summary.detected else "NOT DETECTED",
+            ("detected" if summary.detected else "NOT DETECTED")
+            + (f" (false-alarm rate on simulated nulls {fa:g})"
+               if summary.detected and (fa := summary.detection.get("false_alarm_rate"))
+               is not None else ""),
             "converged" if summary.converged else "NOT CONVERGED",
         ]
         if summary.harmonic["flag"]:
