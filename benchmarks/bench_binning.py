@@ -69,7 +69,11 @@ def main(argv=None):
             rows.append(r)
             print({k: r[k] for k in ("name", "max_points", "n_fit", "cpu", "converged",
                                      "period", "truth")}, flush=True)
+            _write(rows, args, __version__, done=len(rows), total=len(stars) * len(args.points))
 
+
+def _write(rows, args, __version__, *, done, total):
+    """Write the table of the fits so far (after every fit: an interrupted run keeps them)."""
     load = os.getloadavg()
     date = datetime.datetime.now(datetime.UTC).strftime("%Y-%m-%d %H:%M UTC")
     lines = [
@@ -79,7 +83,7 @@ def main(argv=None):
         f"(load average at the end {load[0]:.1f} / {load[1]:.1f} / {load[2]:.1f})",
         f"- versions: rotinfer {__version__}, numpy {np.__version__}, Python "
         f"{sys.version.split()[0]}; population seeds {args.seed}+class index; "
-        f"{args.n} stars per class ({', '.join(args.classes)})",
+        f"{args.n} stars per class ({', '.join(args.classes)}); {done} of {total} fits done",
         "- configuration: defaults (convergence rule included) except [prepare] min_period "
         "= 0.5, bin_fraction = 0.5 and max_points as below",
         "- within 10 %: posterior median inside [0.9 P_min, 1.1 P_max] of the true range; "
@@ -92,6 +96,8 @@ def main(argv=None):
     for n in args.points:
         sel = [r for r in rows if r["max_points"] == n]
         k = len(sel)
+        if not k:
+            continue
         width = np.median([(r["interval_68"][1] - r["interval_68"][0]) / r["period"]
                            for r in sel])
         lines.append(
@@ -114,7 +120,6 @@ def main(argv=None):
             f"{r['interval_68'][1]:.4f} | {r['truth'][0]:.4f}-{r['truth'][1]:.4f} |"
         )
     Path(args.out).write_text("\n".join(lines) + "\n")
-    print("\n".join(lines))
 
 
 if __name__ == "__main__":
