@@ -28,14 +28,7 @@ from pathlib import Path
 
 import numpy as np
 from bench_fit import fit_one, make_pattern
-
-
-def _within(value, truth, frac=0.1):
-    return truth[0] * (1 - frac) <= value <= truth[1] * (1 + frac)
-
-
-def _overlaps(interval, truth):
-    return interval[0] <= truth[1] and interval[1] >= truth[0]
+from bench_population import _overlaps, _within
 
 
 def main(argv=None):
@@ -105,9 +98,9 @@ def _write(rows, args, __version__, *, done, total):
             f"| {np.median([r['cpu'] for r in sel]):.0f} "
             f"| {np.median([r['wall'] for r in sel]):.0f} "
             f"| {sum(r['converged'] for r in sel)}/{k} "
-            f"| {sum(_within(r['period'], r['truth']) for r in sel)}/{k} "
-            f"| {sum(_overlaps(r['interval_68'], r['truth']) for r in sel)}/{k} "
-            f"| {sum(_overlaps(r['interval_95'], r['truth']) for r in sel)}/{k} "
+            f"| {sum(bool(_within(r['period'], *r['truth'])) for r in sel)}/{k} "
+            f"| {sum(bool(_overlaps(*r['interval_68'], *r['truth'])) for r in sel)}/{k} "
+            f"| {sum(bool(_overlaps(*r['interval_95'], *r['truth'])) for r in sel)}/{k} "
             f"| {width * 100:.2f} % |"
         )
     lines += ["", "| star | class | max_points | points | CPU [s] | steps | converged | "
