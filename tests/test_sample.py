@@ -378,3 +378,24 @@ def test_double_period_trap_is_closed(rng):
     doubles = [m for m in modes if relation(m.period, 3.0, 0.05) == "2P"]
     for m in doubles:
         assert m.rank_value < modes[0].rank_value - 5.0
+
+
+@pytest.mark.parametrize("log_period_offset", [-3.0, 3.0])
+def test_optimiser_start_outside_the_period_prior_is_pulled_inside(rng, log_period_offset):
+    # A saddle escape displaces the start along the direction of negative curvature, which
+    # can leave the period prior's range (seen on a simulated one-year null star: SciPy's
+    # L-BFGS-B refused the empty window, "upper bound is less than the lower bound"). The
+    # window must then be centred on the nearest allowed period and the result stay inside.
+    from rotinfer.model import RotationModel
+    from rotinfer.sample.optimise import _optimise_from
+
+    t = np.sort(rng.uniform(0.0, 30.0, 200))
+    model = RotationModel(t, 1.0 + 1e-3 * rng.standard_normal(200), np.full(200, 1e-3),
+                          period_range=(0.5, 14.0))
+    x0 = model.pack(period=3.0, sigma=1e-3, coherence_rotations=5.0, f=0.3, r=0.5,
+                    background_sigma=3e-4, background_tau=0.3, jitter=1e-4, mean=1.0)
+    prior = model._priors["log_period"]
+    x0[0] = (prior.b if log_period_offset > 0 else prior.a) + log_period_offset
+    x, lp = _optimise_from(model, x0, SamplerConfig())
+    assert prior.a <= x[0] <= prior.b
+    assert math.isfinite(lp)

@@ -289,7 +289,10 @@ def _starts(model: RotationModel, period: float, n: int, rng: np.random.Generato
 def _optimise_from(model, x0, config):
     """Optimise with the period held within a window around the start (re-centred twice)."""
     w = math.log(config.period_window)
-    centre = x0[0]
+    prior = model._priors["log_period"]
+    # A displaced start (saddle escape) can lie outside the prior's period range: the
+    # window is centred on the nearest allowed period so that it is never empty.
+    centre = min(max(float(x0[0]), prior.a), prior.b)
     x, lp = x0, -math.inf
     for _ in range(3):
         bounds = _bounds(model, centre - w, centre + w)
