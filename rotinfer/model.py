@@ -17,11 +17,16 @@ The light curve (relative flux, normalised to median 1 per segment by
   jitter term is always fitted: it matters most when the input had no
   uncertainties and ``prepare`` had to estimate them from the scatter.
 * The aperiodic *comparison* model (for the detection test) has no rotation
-  term and two background oscillators, so that the question it answers is
-  whether a second variability component is better described as a rotation
-  mode than as a second aperiodic one (with one background term only, a
-  rotation term of low coherence wins on any star whose noise has two
-  timescales, e.g. granulation and slow drifts).
+  term and three background oscillators (``comparison_backgrounds``), so that
+  the question it answers is whether a variability component is better
+  described as a rotation mode than as one more aperiodic one. With one
+  background term only, a rotation term of low coherence wins on any star whose
+  noise has two timescales (granulation and slow drifts); with two, it still
+  won on simulated one-year space light curves whose noise has three
+  (granulation, the settling ramps after each downlink gap, and a
+  long-period wander), calling 7 of 16 such null stars periodic. The extra
+  oscillator costs two parameters in the BIC, so stars that do not need it
+  gain ~2 ln N in delta-BIC (BENCHMARKS.md, section 3).
 * ``mean`` — one mean shared by all segments. Preparation has already divided
   each segment by its median, so the segments share a level of 1 by
   construction; a free mean per segment would add parameters that trade off
@@ -49,7 +54,7 @@ sampled parameter           meaning
                             P/2 mode is never more coherent than the mode at P
 ``log_background_amplitude`` ln sigma_bg (relative flux)
 ``log_background_timescale`` ln tau_bg, damping time of the background in days
-``log_background2_*``       second background oscillator (aperiodic model only)
+``log_background2_*``, ...  further background oscillators (aperiodic model only)
 ``log_jitter``              ln s, extra white noise (relative flux)
 ``mean``                    shared mean level (relative flux)
 ==========================  =====================================================
@@ -137,6 +142,9 @@ class ModelConfig:
         95 % prior range of the background damping time, days.
     jitter_ppt : [lo, hi]
         95 % prior range of the extra white noise, ppt.
+    comparison_backgrounds : int
+        Background oscillators of the aperiodic comparison model (detection test), each
+        with the background priors: 2, 3 (default) or 4.
     mean : [centre, sd]
         Normal prior on the shared mean (relative flux).
     """
@@ -151,6 +159,7 @@ class ModelConfig:
     background_amplitude_ppt: tuple[float, ...] = (0.01, 300.0)
     background_timescale_days: tuple[float, ...] = (0.01, 30.0)
     jitter_ppt: tuple[float, ...] = (0.001, 100.0)
+    comparison_backgrounds: int = 3
     mean: tuple[float, ...] = (1.0, 0.05)
 
     def __post_init__(self):
@@ -176,11 +185,21 @@ class ModelConfig:
         pair("mean", positive=False, increasing=False)
         if self.mean[1] <= 0:
             raise ConfigError(f"[model] mean: the prior sd must be positive, got {self.mean!r}")
+        n_bg = self.comparison_backgrounds
+        if isinstance(n_bg, bool) or not isinstance(n_bg, int) or not 2 <= n_bg <= 4:
+            raise ConfigError(
+                f"[model] comparison_backgrounds: allowed 2, 3 or 4, got {n_bg!r}"
+            )
         if not (np.isfinite(self.max_secondary_fraction) and self.max_secondary_fraction > 0):
             raise ConfigError(
                 "[model] max_secondary_fraction: must be positive, "
                 f"got {self.max_secondary_fraction}"
             )
+
+
+def background_suffixes(n: int) -> tuple[str, ...]:
+    """Name suffixes of ``n`` background oscillators: "", "2", "3", ..."""
+    return ("",) + tuple(str(k) for k in range(2, n + 1))
 
 
 def _softplus(x: float) -> float:
@@ -276,8 +295,8 @@ class RotationModel:
     period_range : (float, float)
         Period prior limits in days (ignored for the aperiodic model).
     periodic : bool
-        False gives the aperiodic comparison model (two background oscillators +
-        jitter + mean).
+        False gives the aperiodic comparison model (``comparison_backgrounds``
+        background oscillators + jitter + mean).
     source : str
         Name used in error messages.
 
@@ -319,6 +338,9 @@ class RotationModel:
         object.__setattr__(self, "period_range", (lo, hi))
         object.__setattr__(self, "_priors", self._build_priors())
         object.__setattr__(self, "_names", tuple(self._priors))
+        object.__setattr__(self, "_bg_suffixes", tuple(
+            n[len("log_background"):-len("_amplitude")] for n in self._names
+            if n.startswith("log_background") and n.endswith("_amplitude")))
         object.__setattr__(self, "_prior_list", tuple(self._priors.values()))
         if self.basin is not None:
             blo, bhi = (float(v) for v in self.basin)
@@ -358,7 +380,8 @@ class RotationModel:
         return replace(self, basin=basin)
 
     def aperiodic(self) -> RotationModel:
-        """The comparison model: no rotation term, two background oscillators."""
+        """The comparison model: no rotation term, ``comparison_backgrounds`` background
+        oscillators."""
         config = replace(self.config, background=True)
         return replace(self, periodic=False, basin=None, config=config)
 
@@ -377,12 +400,13 @@ class RotationModel:
             c.background_amplitude_ppt[0] * 1e-3, c.background_amplitude_ppt[1] * 1e-3
         )
         bg_tau = _lognormal_from_range(*c.background_timescale_days)
-        if c.background or not self.periodic:
-            pri["log_background_amplitude"] = _Prior("normal", *bg_amp)
-            pri["log_background_timescale"] = _Prior("normal", *bg_tau)
-        if not self.periodic:
-            pri["log_background2_amplitude"] = _Prior("normal", *bg_amp)
-            pri["log_background2_timescale"] = _Prior("normal", *bg_tau)
+        if self.periodic:
+            suffixes = ("",) if c.background else ()
+        else:
+            suffixes = background_suffixes(c.comparison_backgrounds)
+        for suffix in suffixes:
+            pri[f"log_background{suffix}_amplitude"] = _Prior("normal", *bg_amp)
+            pri[f"log_background{suffix}_timescale"] = _Prior("normal", *bg_tau)
         pri["log_jitter"] = _Prior(
             "normal", *_lognormal_from_range(c.jitter_ppt[0] * 1e-3, c.jitter_ppt[1] * 1e-3)
         )
@@ -406,6 +430,11 @@ class RotationModel:
     def has_background2(self) -> bool:
         return "log_background2_amplitude" in self._priors
 
+    @property
+    def background_suffixes(self) -> tuple[str, ...]:
+        """Name suffixes of the background oscillators present ("", "2", "3", ...)."""
+        return self._bg_suffixes
+
     # --------------------------------------------------------------- transforms
     def unpack(self, theta) -> dict[str, float]:
         """Natural parameters (celerite2's and ours) for one unconstrained vector."""
@@ -424,12 +453,9 @@ class RotationModel:
                 dQ=(1.0 - r) * (q1 - 0.5),
                 f=self.config.max_secondary_fraction * _logistic(th["logit_secondary_fraction"]),
             )
-        if self.has_background:
-            out["background_sigma"] = math.exp(th["log_background_amplitude"])
-            out["background_tau"] = math.exp(th["log_background_timescale"])
-        if self.has_background2:
-            out["background2_sigma"] = math.exp(th["log_background2_amplitude"])
-            out["background2_tau"] = math.exp(th["log_background2_timescale"])
+        for suffix in self.background_suffixes:
+            out[f"background{suffix}_sigma"] = math.exp(th[f"log_background{suffix}_amplitude"])
+            out[f"background{suffix}_tau"] = math.exp(th[f"log_background{suffix}_timescale"])
         out["jitter"] = math.exp(th["log_jitter"])
         out["mean"] = th["mean"]
         return out
@@ -454,14 +480,10 @@ class RotationModel:
                 vals.append(math.log(u) - math.log1p(-u))
             elif name == "logit_secondary_quality":
                 vals.append(math.log(natural["r"]) - math.log1p(-natural["r"]))
-            elif name == "log_background_amplitude":
-                vals.append(math.log(natural["background_sigma"]))
-            elif name == "log_background_timescale":
-                vals.append(math.log(natural["background_tau"]))
-            elif name == "log_background2_amplitude":
-                vals.append(math.log(natural["background2_sigma"]))
-            elif name == "log_background2_timescale":
-                vals.append(math.log(natural["background2_tau"]))
+            elif name.startswith("log_background") and name.endswith("_amplitude"):
+                vals.append(math.log(natural[name[len("log_"):-len("_amplitude")] + "_sigma"]))
+            elif name.startswith("log_background") and name.endswith("_timescale"):
+                vals.append(math.log(natural[name[len("log_"):-len("_timescale")] + "_tau"]))
             elif name == "log_jitter":
                 vals.append(math.log(natural["jitter"]))
             else:
@@ -516,19 +538,13 @@ class RotationModel:
             k = terms.RotationTerm(
                 sigma=p["sigma"], period=p["period"], Q0=p["Q0"], dQ=p["dQ"], f=p["f"]
             )
-        if self.has_background:
+        for suffix in self.background_suffixes:
             # tau = 2 Q / w0  =>  w0 = 2 Q / tau
             bg = terms.SHOTerm(
-                sigma=p["background_sigma"], w0=2.0 * BACKGROUND_Q / p["background_tau"],
-                Q=BACKGROUND_Q,
+                sigma=p[f"background{suffix}_sigma"],
+                w0=2.0 * BACKGROUND_Q / p[f"background{suffix}_tau"], Q=BACKGROUND_Q,
             )
             k = bg if k is None else k + bg
-        if self.has_background2:
-            bg2 = terms.SHOTerm(
-                sigma=p["background2_sigma"], w0=2.0 * BACKGROUND_Q / p["background2_tau"],
-                Q=BACKGROUND_Q,
-            )
-            k = k + bg2
         return k
 
     def log_prior(self, theta) -> float:
@@ -560,13 +576,10 @@ class RotationModel:
             w2 = 8.0 * math.pi * q2 / (period * math.sqrt(4.0 * q2 * q2 - 1.0))
             oscillators.append((amp / (w1 * q1), w1, q1))
             oscillators.append((f * amp / (w2 * q2), w2, q2))
-        if self.has_background:
-            w0 = 2.0 * BACKGROUND_Q / p["background_tau"]
-            oscillators.append((p["background_sigma"] ** 2 / (w0 * BACKGROUND_Q), w0, BACKGROUND_Q))
-        if self.has_background2:
-            w0 = 2.0 * BACKGROUND_Q / p["background2_tau"]
+        for suffix in self.background_suffixes:
+            w0 = 2.0 * BACKGROUND_Q / p[f"background{suffix}_tau"]
             oscillators.append(
-                (p["background2_sigma"] ** 2 / (w0 * BACKGROUND_Q), w0, BACKGROUND_Q)
+                (p[f"background{suffix}_sigma"] ** 2 / (w0 * BACKGROUND_Q), w0, BACKGROUND_Q)
             )
         ac, bc, cc, dc = [], [], [], []
         for s0, w0, q in oscillators:
@@ -652,4 +665,7 @@ class RotationModel:
         object.__setattr__(self, "_var", self.flux_err * self.flux_err)
         object.__setattr__(self, "_priors", self._build_priors())
         object.__setattr__(self, "_names", tuple(self._priors))
+        object.__setattr__(self, "_bg_suffixes", tuple(
+            n[len("log_background"):-len("_amplitude")] for n in self._names
+            if n.startswith("log_background") and n.endswith("_amplitude")))
         object.__setattr__(self, "_prior_list", tuple(self._priors.values()))

@@ -50,7 +50,7 @@ def _dense_covariance(model, theta):
         w2 = 8 * np.pi * q2 / (p["period"] * np.sqrt(4 * q2**2 - 1))
         cov += _sho_kernel(lag, amp / (w1 * q1), w1, q1)
         cov += _sho_kernel(lag, p["f"] * amp / (w2 * q2), w2, q2)
-    for key in ("background", "background2"):
+    for key in ("background", "background2", "background3"):
         if key + "_sigma" in p:
             q = 1 / np.sqrt(2)
             w0 = 2 * q / p[key + "_tau"]
@@ -59,20 +59,24 @@ def _dense_covariance(model, theta):
     return cov, p["mean"]
 
 
-def _toy_model(rng, n=150, periodic=True, background=True):
+def _toy_model(rng, n=150, periodic=True, background=True, comparison_backgrounds=2):
     t = np.sort(rng.uniform(0.0, 20.0, n))
     y = 1.0 + 2e-3 * np.sin(2 * np.pi * t / 3.1) + 3e-4 * rng.standard_normal(n)
     err = rng.uniform(2e-4, 4e-4, n)
-    cfg = ModelConfig(background=background)
+    cfg = ModelConfig(background=background, comparison_backgrounds=comparison_backgrounds)
     model = RotationModel(t, y, err, config=cfg, period_range=(0.3, 10.0))
     return model if periodic else model.aperiodic()
 
 
-@pytest.mark.parametrize("periodic,background", [(True, True), (True, False), (False, True)])
-def test_log_likelihood_matches_dense_multivariate_normal(rng, periodic, background):
+@pytest.mark.parametrize("periodic,background,n_bg",
+                         [(True, True, 2), (True, False, 2), (False, True, 2), (False, True, 3)])
+def test_log_likelihood_matches_dense_multivariate_normal(rng, periodic, background, n_bg):
     # Reference: scipy.stats.multivariate_normal.logpdf on the dense covariance built from
     # the SHO formulas of Foreman-Mackey et al. 2017 eq. 20 (see _dense_covariance).
-    model = _toy_model(rng, periodic=periodic, background=background)
+    model = _toy_model(rng, periodic=periodic, background=background,
+                       comparison_backgrounds=n_bg)
+    if not periodic:
+        assert len(model.background_suffixes) == n_bg
     draws = model.sample_prior(rng, 8)
     checked = 0
     for theta in draws:
@@ -227,6 +231,9 @@ def test_invalid_inputs_and_config():
         ModelConfig(amplitude_ppt=(5.0, 1.0))
     with pytest.raises(ConfigError, match="mean"):
         ModelConfig(mean=(1.0, -0.1))
+    for bad in (1, 5, 2.5, True):
+        with pytest.raises(ConfigError, match="comparison_backgrounds: allowed 2, 3 or 4"):
+            ModelConfig(comparison_backgrounds=bad)
 
 
 def test_simulate_has_model_covariance(rng):

@@ -399,3 +399,29 @@ def test_optimiser_start_outside_the_period_prior_is_pulled_inside(rng, log_peri
     x, lp = _optimise_from(model, x0, SamplerConfig())
     assert prior.a <= x[0] <= prior.b
     assert math.isfinite(lp)
+
+
+def test_aperiodic_fit_with_an_extra_oscillator_is_never_worse(rng):
+    # Nested models (common practice): the comparison model with three background
+    # oscillators contains the one with two (third amplitude -> 0), so its maximum
+    # likelihood cannot be lower. Data: three aperiodic components of damping times
+    # 0.05, 1 and 8 d (granulation-like, settling-like, drift-like) plus white noise.
+    import dataclasses
+
+    from rotinfer.model import ModelConfig, RotationModel
+    from rotinfer.sample import fit_aperiodic
+
+    t = np.sort(rng.uniform(0.0, 40.0, 600))
+    base = RotationModel(t, np.ones(600), np.full(600, 2e-4),
+                         config=ModelConfig(comparison_backgrounds=3), period_range=(0.5, 20.0))
+    null3 = base.aperiodic()
+    truth = null3.pack(background_sigma=3e-4, background_tau=0.05, background2_sigma=6e-4,
+                       background2_tau=1.0, background3_sigma=1e-3, background3_tau=8.0,
+                       jitter=1e-5, mean=1.0)
+    star = dataclasses.replace(base, flux=null3.simulate(truth, rng))
+    two = dataclasses.replace(star, config=ModelConfig(comparison_backgrounds=2))
+    fit2 = fit_aperiodic(two, config=SamplerConfig())
+    fit3 = fit_aperiodic(star, config=SamplerConfig())
+    assert fit3.theta.size == fit2.theta.size + 2
+    assert fit3.log_likelihood >= fit2.log_likelihood - 0.5
+    assert "ln 3!" in fit3.laplace.note or not fit3.laplace.valid

@@ -31,7 +31,7 @@ ch. 27 (Laplace's method). Byrd, Lu, Nocedal & Zhu 1995, SIAM J. Sci. Comput. 16
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 from scipy import optimize
@@ -421,31 +421,61 @@ def _escape_saddle(model, x, lp, config, tries: int = 2):
     return x, lp, lap
 
 
+def _fit_backgrounds(null: RotationModel):
+    """Posterior maximum (lp, x) of an aperiodic model with n background oscillators.
+
+    Two oscillators: three starts, short to long damping times. More: the optimum
+    with one oscillator fewer (fitted first, recursively) extended by a weak extra
+    oscillator at several damping times, besides the same starts, so the nested
+    model is never fitted worse than the smaller one it contains.
+    """
+    suffixes = null.background_suffixes
+    signal, noise, level = _data_scales(null)
+    baseline = float(null.time[-1] - null.time[0]) if null.time.size > 1 else 1.0
+    # Starting damping times (days), short to long; the first len(suffixes) of each set.
+    sets = ((0.05, 3.0, 0.5, 30.0), (0.3, max(baseline / 5.0, 1.0), 0.03, 3.0),
+            (0.02, 0.5, 5.0, 0.1))
+    starts = []
+    for taus in sets:
+        nat = dict(jitter=0.5 * noise, mean=level)
+        for suffix, tau in zip(suffixes, taus, strict=False):
+            nat[f"background{suffix}_sigma"] = 0.7 * signal
+            nat[f"background{suffix}_tau"] = tau
+        starts.append(null.pack(**nat))
+    n = len(suffixes)
+    if n > 2:
+        smaller = replace(null, config=replace(null.config, comparison_backgrounds=n - 1))
+        _, x_small = _fit_backgrounds(smaller)
+        nat = smaller.unpack(x_small)
+        for tau in (0.05, 0.5, 5.0, max(baseline / 5.0, 1.0)):
+            nat[f"background{suffixes[-1]}_sigma"] = 0.1 * signal
+            nat[f"background{suffixes[-1]}_tau"] = tau
+            starts.append(null.pack(**nat))
+    best = None
+    for x0 in starts:
+        x, lp = _minimise(null, x0, _bounds(null))
+        if best is None or lp > best[0]:
+            best = (lp, x)
+    return best
+
+
 @single_blas_thread
 def fit_aperiodic(model: RotationModel, *, config: SamplerConfig) -> Mode:
     """Maximum and Laplace evidence of the aperiodic comparison model.
 
-    The model (:meth:`RotationModel.aperiodic`) has two background oscillators
-    with the same prior, so its posterior has two mirror-image modes (the
-    oscillators swapped); the Laplace estimate at one of them is raised by ln 2
-    to count both (exact when the two are well separated, at most ln 2 too high
-    when they overlap).
+    The model (:meth:`RotationModel.aperiodic`) has ``n`` background oscillators
+    (``[model] comparison_backgrounds``) with the same prior, so its posterior has
+    ``n!`` mirror-image modes (the oscillators permuted); the Laplace estimate at one
+    of them is raised by ln n! to count them all (exact when they are well separated,
+    too high by at most ln n! when they overlap).
     """
     null = model.aperiodic()
-    signal, noise, level = _data_scales(null)
-    best = None
-    baseline = float(null.time[-1] - null.time[0]) if null.time.size > 1 else 1.0
-    for tau1, tau2 in ((0.05, 3.0), (0.3, max(baseline / 5.0, 1.0)), (0.02, 0.5)):
-        x0 = null.pack(background_sigma=0.7 * signal, background_tau=tau1,
-                       background2_sigma=0.7 * signal, background2_tau=tau2,
-                       jitter=0.5 * noise, mean=level)
-        x, lp = _minimise(null, x0, _bounds(null))
-        if best is None or lp > best[0]:
-            best = (lp, x)
-    lp, x = best
+    lp, x = _fit_backgrounds(null)
+    suffixes = null.background_suffixes
     lap, _ = laplace(null, x)
     if lap.valid:
-        lap = Laplace(lap.log_evidence + math.log(2.0), lap.covariance, True,
-                      "ln 2 added for the mirror-image mode (background terms swapped)")
+        n = len(suffixes)
+        lap = Laplace(lap.log_evidence + math.lgamma(n + 1.0), lap.covariance, True,
+                      f"ln {n}! added for the mirror-image modes (background terms permuted)")
     return Mode(theta=np.array(x), period=math.nan, log_posterior=float(lp),
                 log_likelihood=null.log_likelihood(x), laplace=lap)

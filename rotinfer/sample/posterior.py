@@ -54,6 +54,9 @@ __all__ = ["Posterior", "SampledMode", "fit", "importance_log_evidence"]
 # noise allowance of the stability clause, added later) stay out, so a changed value
 # resumes a checkpoint instead of starting over.
 _NOT_IN_FINGERPRINT = ("max_steps", "importance_draws", "tau_noise_z")
+#: Model options that do not change the periodic model's chains (the detection test's
+#: comparison model only), so checkpoints resume across them.
+_MODEL_NOT_IN_FINGERPRINT = ("comparison_backgrounds",)
 
 
 @dataclass(frozen=True)
@@ -180,8 +183,10 @@ def _fingerprint(model: RotationModel, periods, config: SamplerConfig, seed) -> 
     for arr in (model.time, model.flux, model.flux_err):
         h.update(np.ascontiguousarray(arr).tobytes())
     sampler = {k: v for k, v in dataclass_to_dict(config).items() if k not in _NOT_IN_FINGERPRINT}
+    model_cfg = {k: v for k, v in dataclass_to_dict(model.config).items()
+                 if k not in _MODEL_NOT_IN_FINGERPRINT}
     meta = {
-        "model": dataclass_to_dict(model.config), "period_range": list(model.period_range),
+        "model": model_cfg, "period_range": list(model.period_range),
         "sampler": sampler, "seed": seed, "periods": [float(p) for p in periods],
     }
     h.update(json.dumps(meta, sort_keys=True, default=str).encode())
