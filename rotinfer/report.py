@@ -22,6 +22,7 @@ from pathlib import Path
 from typing import Any
 
 from .errors import InputError
+from .summarise import false_alarm_text
 
 __all__ = [
     "SUMMARY_NAME",
@@ -130,9 +131,9 @@ def _flag_sentences(summary: Mapping[str, Any]) -> list[str]:
             "would say if forced; do not publish it as a detection."
         )
     elif detected:
-        fap = lookup(summary, "detection.false_alarm_rate")
-        extra = f" (false-alarm rate at this threshold on simulated null stars: {_fmt(fap)})" \
-            if _finite(fap) else ""
+        fap = false_alarm_text(summary.get("detection"))
+        extra = f" (false-alarm rate at this threshold on simulated null stars: {fap})" \
+            if fap else ""
         out.append("A rotation signal is detected" + extra + ".")
     if summary.get("converged") is False:
         out.append(

@@ -38,6 +38,7 @@ __all__ = [
     "StarSummary",
     "detection",
     "detection_statistics",
+    "false_alarm_text",
     "harmonic_check",
     "hdr_intervals",
     "summarise",
@@ -76,6 +77,10 @@ class DetectionConfig:
         threshold, as measured by ``benchmarks/calibrate_detection.py``; None
         when it has not been measured. (Measured, it need not meet the 2 %
         target: ``calibration`` says whether the threshold was set to meet it.)
+    false_alarm_upper_95 : float or None
+        One-sided 95 % upper limit on that rate (Clopper & Pearson 1934) from the
+        number of null stars measured; with few nulls it, not the rate, is what
+        the measurement shows.
     calibration : str
         Where the calibration came from (script, number of null stars, date).
     harmonic_probability : float
@@ -91,6 +96,7 @@ class DetectionConfig:
     statistic: Literal["delta_bic", "laplace"] = "delta_bic"
     threshold: float = 10.0
     false_alarm_rate: float | None = 0.2
+    false_alarm_upper_95: float | None = None
     calibration: str = (
         "measured, not calibrated: 7 of 35 simulated null stars called periodic "
         "(benchmarks/calibrate_detection.py, seed 1, 2026-12-02): 7 of 16 one-year 30-min light "
@@ -113,9 +119,15 @@ class DetectionConfig:
             v = getattr(self, name)
             if not 0 < v < 1:
                 raise ConfigError(f"[detection] {name}: must be in (0, 1), got {v}")
-        if self.false_alarm_rate is not None and not 0 <= self.false_alarm_rate <= 1:
+        for name in ("false_alarm_rate", "false_alarm_upper_95"):
+            v = getattr(self, name)
+            if v is not None and not 0 <= v <= 1:
+                raise ConfigError(f"[detection] {name}: must be in [0, 1], got {v}")
+        if (self.false_alarm_rate is not None and self.false_alarm_upper_95 is not None
+                and self.false_alarm_upper_95 < self.false_alarm_rate):
             raise ConfigError(
-                f"[detection] false_alarm_rate: must be in [0, 1], got {self.false_alarm_rate}"
+                "[detection] false_alarm_upper_95: must be >= false_alarm_rate, got "
+                f"{self.false_alarm_upper_95} < {self.false_alarm_rate}"
             )
 
 
@@ -290,9 +302,23 @@ def detection(posterior: Posterior, config: DetectionConfig) -> dict:
         "delta_bic": _num(delta_bic),
         "two_ln_bayes_factor_laplace": _num(two_ln_b),
         "false_alarm_rate": config.false_alarm_rate,
+        "false_alarm_upper_95": config.false_alarm_upper_95,
         "calibration": config.calibration,
         "note": note,
     }
+
+
+def false_alarm_text(detection_block) -> str:
+    """The measured false-alarm rate in words, e.g. "0.02 (95 % upper limit 0.05)"; "" if unknown.
+
+    ``detection_block`` is the ``detection`` mapping of a summary (:func:`detection`).
+    """
+    block = detection_block or {}
+    rate = block.get("false_alarm_rate")
+    if rate is None:
+        return ""
+    upper = block.get("false_alarm_upper_95")
+    return f"{rate:.2g}" + ("" if upper is None else f" (95 % upper limit {upper:.2g})")
 
 
 def _num(v):

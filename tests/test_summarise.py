@@ -155,3 +155,18 @@ def test_summary_contents_and_json(rng):
 def test_detection_config_lists_choices():
     with pytest.raises(ConfigError, match="'delta_bic', 'laplace'"):
         DetectionConfig(statistic="bayes")
+
+
+def test_false_alarm_rate_and_its_upper_limit_are_reported():
+    from rotinfer.summarise import false_alarm_text
+
+    post = _posterior(np.random.default_rng(3), [(3.0, 1.0)])
+    det = detection(post, DetectionConfig(false_alarm_rate=0.0, false_alarm_upper_95=0.05))
+    assert det["false_alarm_upper_95"] == 0.05
+    assert false_alarm_text(det) == "0 (95 % upper limit 0.05)"
+    assert false_alarm_text({"false_alarm_rate": 0.2}) == "0.2"
+    assert false_alarm_text({"false_alarm_rate": None}) == ""
+    with pytest.raises(ConfigError, match="false_alarm_upper_95: must be >= false_alarm_rate"):
+        DetectionConfig(false_alarm_rate=0.1, false_alarm_upper_95=0.05)
+    with pytest.raises(ConfigError, match=r"false_alarm_upper_95: must be in \[0, 1\]"):
+        DetectionConfig(false_alarm_upper_95=1.5)

@@ -46,8 +46,10 @@ def headline(result) -> list[str]:
 
 
 def _false_alarm(summary) -> str:
-    rate = (summary.get("detection") or {}).get("false_alarm_rate")
-    return "" if rate is None else f" (false-alarm rate on simulated null stars: {rate:g})"
+    from ..summarise import false_alarm_text
+
+    rate = false_alarm_text(summary.get("detection"))
+    return f" (false-alarm rate on simulated null stars: {rate})" if rate else ""
 
 
 def _num(value) -> str:

@@ -75,12 +75,13 @@ def fit(settings, files, out_dir, config_path, seed, **opts):
                 click.echo(f"rotinfer: warning: {lc.meta.identifier}: {w.message}", err=True)
             else:
                 warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+        from ..summarise import false_alarm_text
+
         p = summary.period
         flags = [
             ("detected" if summary.detected else "NOT DETECTED")
-            + (f" (false-alarm rate on simulated nulls {fa:g})"
-               if summary.detected and (fa := summary.detection.get("false_alarm_rate"))
-               is not None else ""),
+            + (f" (false-alarm rate on simulated nulls {fa})"
+               if summary.detected and (fa := false_alarm_text(summary.detection)) else ""),
             "converged" if summary.converged else "NOT CONVERGED",
         ]
         if summary.harmonic["flag"]:
