@@ -2,7 +2,7 @@
 
 The detection test compares the periodic model (rotation term + one background
 oscillator) with an aperiodic one of ``n`` background oscillators
-(``[model] comparison_backgrounds``). Changing ``n`` changes only the aperiodic fit,
+(``[model] max_comparison_backgrounds``). Changing ``n`` changes only the aperiodic fit,
 so for stars already analysed by ``bench_population.py`` the delta-BIC under another
 ``n`` follows from the stored one and two aperiodic fits:
 
@@ -89,7 +89,7 @@ def main(argv=None) -> int:
         ident = entry["identifier"]
         summary = json.loads((work / "survey" / entry["folder"] / "summary.json").read_text())
         stored = summary["detection"]["delta_bic"]
-        stored_n = summary["config"]["model"].get("comparison_backgrounds", 2)
+        stored_n = summary["config"]["model"].get("max_comparison_backgrounds", 2)
         if stored is None:
             continue
         prep = prepare(read_light_curve(files[ident]), cfg.prepare)
@@ -97,7 +97,7 @@ def main(argv=None) -> int:
         loglike = {}
         for n in sorted(set(args.n) | {stored_n}):
             model = RotationModel.from_prepared(
-                prep, config=dataclasses.replace(cfg.model, comparison_backgrounds=n))
+                prep, config=dataclasses.replace(cfg.model, max_comparison_backgrounds=n))
             loglike[n] = fit_aperiodic(model, config=cfg.sampler).log_likelihood
         rows.append({
             "id": ident, "points": n_points, "stored_n": stored_n, "stored": stored,

@@ -17,16 +17,16 @@ The light curve (relative flux, normalised to median 1 per segment by
   jitter term is always fitted: it matters most when the input had no
   uncertainties and ``prepare`` had to estimate them from the scatter.
 * The aperiodic *comparison* model (for the detection test) has no rotation
-  term and three background oscillators (``comparison_backgrounds``), so that
-  the question it answers is whether a variability component is better
-  described as a rotation mode than as one more aperiodic one. With one
-  background term only, a rotation term of low coherence wins on any star whose
-  noise has two timescales (granulation and slow drifts); with two, it still
-  won on simulated one-year space light curves whose noise has three
-  (granulation, the settling ramps after each downlink gap, and a
-  long-period wander), calling 7 of 16 such null stars periodic. The extra
-  oscillator costs two parameters in the BIC, so stars that do not need it
-  gain ~2 ln N in delta-BIC (BENCHMARKS.md, section 3).
+  term and two or more background oscillators, as many as the BIC supports up
+  to ``max_comparison_backgrounds`` (3), so that the question it answers is
+  whether a variability component is better described as a rotation mode than
+  as one more aperiodic one. With one background term only, a rotation term of
+  low coherence wins on any star whose noise has two timescales (granulation
+  and slow drifts); with two always, it still won on simulated one-year space
+  light curves whose noise has three (granulation, the settling ramps after
+  each downlink gap, a slow wander), calling 7 of 16 such null stars periodic;
+  with three always, the two parameters of an unneeded oscillator lower the
+  bar for rotation by 2 ln N on every other star (BENCHMARKS.md, section 3).
 * ``mean`` — one mean shared by all segments. Preparation has already divided
   each segment by its median, so the segments share a level of 1 by
   construction; a free mean per segment would add parameters that trade off
@@ -142,9 +142,11 @@ class ModelConfig:
         95 % prior range of the background damping time, days.
     jitter_ppt : [lo, hi]
         95 % prior range of the extra white noise, ppt.
-    comparison_backgrounds : int
-        Background oscillators of the aperiodic comparison model (detection test), each
-        with the background priors: 2, 3 (default) or 4.
+    max_comparison_backgrounds : int
+        Most background oscillators of the aperiodic comparison model (detection
+        test), each with the background priors: 2, 3 (default) or 4. The
+        comparison uses the best by BIC of 2 up to this many
+        (:func:`rotinfer.sample.fit_aperiodic`).
     mean : [centre, sd]
         Normal prior on the shared mean (relative flux).
     """
@@ -159,7 +161,7 @@ class ModelConfig:
     background_amplitude_ppt: tuple[float, ...] = (0.01, 300.0)
     background_timescale_days: tuple[float, ...] = (0.01, 30.0)
     jitter_ppt: tuple[float, ...] = (0.001, 100.0)
-    comparison_backgrounds: int = 3
+    max_comparison_backgrounds: int = 3
     mean: tuple[float, ...] = (1.0, 0.05)
 
     def __post_init__(self):
@@ -185,10 +187,10 @@ class ModelConfig:
         pair("mean", positive=False, increasing=False)
         if self.mean[1] <= 0:
             raise ConfigError(f"[model] mean: the prior sd must be positive, got {self.mean!r}")
-        n_bg = self.comparison_backgrounds
+        n_bg = self.max_comparison_backgrounds
         if isinstance(n_bg, bool) or not isinstance(n_bg, int) or not 2 <= n_bg <= 4:
             raise ConfigError(
-                f"[model] comparison_backgrounds: allowed 2, 3 or 4, got {n_bg!r}"
+                f"[model] max_comparison_backgrounds: allowed 2, 3 or 4, got {n_bg!r}"
             )
         if not (np.isfinite(self.max_secondary_fraction) and self.max_secondary_fraction > 0):
             raise ConfigError(
@@ -295,8 +297,8 @@ class RotationModel:
     period_range : (float, float)
         Period prior limits in days (ignored for the aperiodic model).
     periodic : bool
-        False gives the aperiodic comparison model (``comparison_backgrounds``
-        background oscillators + jitter + mean).
+        False gives an aperiodic comparison model (``max_comparison_backgrounds``
+        background oscillators + jitter + mean; :meth:`aperiodic`).
     source : str
         Name used in error messages.
 
@@ -380,8 +382,9 @@ class RotationModel:
         return replace(self, basin=basin)
 
     def aperiodic(self) -> RotationModel:
-        """The comparison model: no rotation term, ``comparison_backgrounds`` background
-        oscillators."""
+        """The largest comparison model: no rotation term, ``max_comparison_backgrounds``
+        background oscillators (:func:`rotinfer.sample.fit_aperiodic` also fits the
+        smaller ones and keeps the best by BIC)."""
         config = replace(self.config, background=True)
         return replace(self, periodic=False, basin=None, config=config)
 
@@ -403,7 +406,7 @@ class RotationModel:
         if self.periodic:
             suffixes = ("",) if c.background else ()
         else:
-            suffixes = background_suffixes(c.comparison_backgrounds)
+            suffixes = background_suffixes(c.max_comparison_backgrounds)
         for suffix in suffixes:
             pri[f"log_background{suffix}_amplitude"] = _Prior("normal", *bg_amp)
             pri[f"log_background{suffix}_timescale"] = _Prior("normal", *bg_tau)

@@ -59,11 +59,11 @@ def _dense_covariance(model, theta):
     return cov, p["mean"]
 
 
-def _toy_model(rng, n=150, periodic=True, background=True, comparison_backgrounds=2):
+def _toy_model(rng, n=150, periodic=True, background=True, max_comparison_backgrounds=2):
     t = np.sort(rng.uniform(0.0, 20.0, n))
     y = 1.0 + 2e-3 * np.sin(2 * np.pi * t / 3.1) + 3e-4 * rng.standard_normal(n)
     err = rng.uniform(2e-4, 4e-4, n)
-    cfg = ModelConfig(background=background, comparison_backgrounds=comparison_backgrounds)
+    cfg = ModelConfig(background=background, max_comparison_backgrounds=max_comparison_backgrounds)
     model = RotationModel(t, y, err, config=cfg, period_range=(0.3, 10.0))
     return model if periodic else model.aperiodic()
 
@@ -74,7 +74,7 @@ def test_log_likelihood_matches_dense_multivariate_normal(rng, periodic, backgro
     # Reference: scipy.stats.multivariate_normal.logpdf on the dense covariance built from
     # the SHO formulas of Foreman-Mackey et al. 2017 eq. 20 (see _dense_covariance).
     model = _toy_model(rng, periodic=periodic, background=background,
-                       comparison_backgrounds=n_bg)
+                       max_comparison_backgrounds=n_bg)
     if not periodic:
         assert len(model.background_suffixes) == n_bg
     draws = model.sample_prior(rng, 8)
@@ -232,8 +232,8 @@ def test_invalid_inputs_and_config():
     with pytest.raises(ConfigError, match="mean"):
         ModelConfig(mean=(1.0, -0.1))
     for bad in (1, 5, 2.5, True):
-        with pytest.raises(ConfigError, match="comparison_backgrounds: allowed 2, 3 or 4"):
-            ModelConfig(comparison_backgrounds=bad)
+        with pytest.raises(ConfigError, match="max_comparison_backgrounds: allowed 2, 3 or 4"):
+            ModelConfig(max_comparison_backgrounds=bad)
 
 
 def test_simulate_has_model_covariance(rng):

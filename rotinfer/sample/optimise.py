@@ -421,18 +421,20 @@ def _escape_saddle(model, x, lp, config, tries: int = 2):
     return x, lp, lap
 
 
-def _fit_backgrounds(null: RotationModel):
-    """Posterior maximum (lp, x) of an aperiodic model with n background oscillators.
+def _fit_backgrounds(null: RotationModel) -> list:
+    """Posterior maxima of aperiodic models with 2, 3, ... n background oscillators.
 
-    Two oscillators: three starts, short to long damping times. More: the optimum
-    with one oscillator fewer (fitted first, recursively) extended by a weak extra
-    oscillator at several damping times, besides the same starts, so the nested
-    model is never fitted worse than the smaller one it contains.
+    Returns ``[(model, lp, x), ...]`` for 2 up to the ``n`` of ``null``. Two
+    oscillators: three starts, short to long damping times. More: the optimum with
+    one oscillator fewer (fitted first) extended by a weak extra oscillator at several
+    damping times, besides the same starts, so that a nested model is never fitted
+    worse than the smaller one it contains.
     """
     suffixes = null.background_suffixes
+    n = len(suffixes)
     signal, noise, level = _data_scales(null)
     baseline = float(null.time[-1] - null.time[0]) if null.time.size > 1 else 1.0
-    # Starting damping times (days), short to long; the first len(suffixes) of each set.
+    # Starting damping times (days), short to long; the first n of each set.
     sets = ((0.05, 3.0, 0.5, 30.0), (0.3, max(baseline / 5.0, 1.0), 0.03, 3.0),
             (0.02, 0.5, 5.0, 0.1))
     starts = []
@@ -442,11 +444,11 @@ def _fit_backgrounds(null: RotationModel):
             nat[f"background{suffix}_sigma"] = 0.7 * signal
             nat[f"background{suffix}_tau"] = tau
         starts.append(null.pack(**nat))
-    n = len(suffixes)
+    fits = []
     if n > 2:
-        smaller = replace(null, config=replace(null.config, comparison_backgrounds=n - 1))
-        _, x_small = _fit_backgrounds(smaller)
-        nat = smaller.unpack(x_small)
+        smaller = replace(null, config=replace(null.config, max_comparison_backgrounds=n - 1))
+        fits = _fit_backgrounds(smaller)
+        nat = smaller.unpack(fits[-1][2])
         for tau in (0.05, 0.5, 5.0, max(baseline / 5.0, 1.0)):
             nat[f"background{suffixes[-1]}_sigma"] = 0.1 * signal
             nat[f"background{suffixes[-1]}_tau"] = tau
@@ -456,26 +458,37 @@ def _fit_backgrounds(null: RotationModel):
         x, lp = _minimise(null, x0, _bounds(null))
         if best is None or lp > best[0]:
             best = (lp, x)
-    return best
+    return fits + [(null, best[0], best[1])]
 
 
 @single_blas_thread
 def fit_aperiodic(model: RotationModel, *, config: SamplerConfig) -> Mode:
     """Maximum and Laplace evidence of the aperiodic comparison model.
 
-    The model (:meth:`RotationModel.aperiodic`) has ``n`` background oscillators
-    (``[model] comparison_backgrounds``) with the same prior, so its posterior has
-    ``n!`` mirror-image modes (the oscillators permuted); the Laplace estimate at one
-    of them is raised by ln n! to count them all (exact when they are well separated,
-    too high by at most ln n! when they overlap).
+    The comparison model is the best, by the Bayesian information criterion
+    (Schwarz 1978) at the posterior maximum, of the aperiodic models with 2, 3, ...
+    ``[model] max_comparison_backgrounds`` background oscillators: the null
+    hypothesis "no rotation" is given as many aperiodic components as the data
+    support, and no more (an unneeded oscillator would cost its two parameters in
+    the BIC and so lower the bar for rotation). The returned mode's ``theta`` has the
+    chosen model's length (2 parameters per oscillator + jitter + mean).
+
+    Its ``n`` oscillators share one prior, so the posterior has ``n!`` mirror-image
+    modes (the oscillators permuted); the Laplace estimate at one of them is raised
+    by ln n! to count them all (exact when they are well separated, too high by at
+    most ln n! when they overlap).
     """
-    null = model.aperiodic()
-    lp, x = _fit_backgrounds(null)
-    suffixes = null.background_suffixes
+    n_points = model.time.size
+    fits = []
+    for null, lp, x in _fit_backgrounds(model.aperiodic()):
+        loglike = null.log_likelihood(x)
+        fits.append((null.ndim * math.log(n_points) - 2.0 * loglike, null, lp, x, loglike))
+    _, null, lp, x, loglike = min(fits, key=lambda f: f[0])
     lap, _ = laplace(null, x)
     if lap.valid:
-        n = len(suffixes)
+        n = len(null.background_suffixes)
         lap = Laplace(lap.log_evidence + math.lgamma(n + 1.0), lap.covariance, True,
-                      f"ln {n}! added for the mirror-image modes (background terms permuted)")
+                      f"{n} background oscillators (best BIC of 2-{len(fits) + 1}); ln {n}! "
+                      "added for the mirror-image modes (oscillators permuted)")
     return Mode(theta=np.array(x), period=math.nan, log_posterior=float(lp),
-                log_likelihood=null.log_likelihood(x), laplace=lap)
+                log_likelihood=loglike, laplace=lap)

@@ -56,7 +56,7 @@ __all__ = ["Posterior", "SampledMode", "fit", "importance_log_evidence"]
 _NOT_IN_FINGERPRINT = ("max_steps", "importance_draws", "tau_noise_z")
 #: Model options that do not change the periodic model's chains (the detection test's
 #: comparison model only), so checkpoints resume across them.
-_MODEL_NOT_IN_FINGERPRINT = ("comparison_backgrounds",)
+_MODEL_NOT_IN_FINGERPRINT = ("max_comparison_backgrounds",)
 
 
 @dataclass(frozen=True)
