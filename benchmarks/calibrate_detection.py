@@ -219,6 +219,7 @@ def main(argv=None):
             f'statistic = "{stat}"',
             f"threshold = {o['threshold']:.2f}",
             f"false_alarm_rate = {o['rate']:.3f}",
+            f"false_alarm_upper_95 = {o['upper95']:.3f}",
             f'calibration = "benchmarks/calibrate_detection.py: {o["n"]} simulated null stars, '
             f'seed {args.seed}, {date}; 95 % upper limit {o["upper95"]:.3f}"',
             "```",
