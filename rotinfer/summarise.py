@@ -309,7 +309,7 @@ def detection(posterior: Posterior, config: DetectionConfig) -> dict:
 
 
 def false_alarm_text(detection_block) -> str:
-    """The measured false-alarm rate in words, e.g. "0.02 (95 % upper limit 0.05)"; "" if unknown.
+    """The measured false-alarm rate in words, e.g. "0.02, 95 % upper limit 0.05"; "" if unknown.
 
     ``detection_block`` is the ``detection`` mapping of a summary (:func:`detection`).
     """
@@ -318,7 +318,7 @@ def false_alarm_text(detection_block) -> str:
     if rate is None:
         return ""
     upper = block.get("false_alarm_upper_95")
-    return f"{rate:.2g}" + ("" if upper is None else f" (95 % upper limit {upper:.2g})")
+    return f"{rate:.2g}" + ("" if upper is None else f", 95 % upper limit {upper:.2g}")
 
 
 def _num(v):

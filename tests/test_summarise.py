@@ -164,7 +164,7 @@ def test_false_alarm_rate_and_its_upper_limit_are_reported():
     post = _posterior(np.random.default_rng(3), [(3.0, 1.0)])
     det = detection(post, DetectionConfig(false_alarm_rate=0.0, false_alarm_upper_95=0.05))
     assert det["false_alarm_upper_95"] == 0.05
-    assert false_alarm_text(det) == "0 (95 % upper limit 0.05)"
+    assert false_alarm_text(det) == "0, 95 % upper limit 0.05"
     assert false_alarm_text({"false_alarm_rate": 0.2}) == "0.2"
     assert false_alarm_text({"false_alarm_rate": None}) == ""
     with pytest.raises(ConfigError, match="false_alarm_upper_95: must be >= false_alarm_rate"):
