@@ -338,12 +338,7 @@ class RotationModel:
         object.__setattr__(self, "flux_err", e)
         object.__setattr__(self, "_var", e * e)
         object.__setattr__(self, "period_range", (lo, hi))
-        object.__setattr__(self, "_priors", self._build_priors())
-        object.__setattr__(self, "_names", tuple(self._priors))
-        object.__setattr__(self, "_bg_suffixes", tuple(
-            n[len("log_background"):-len("_amplitude")] for n in self._names
-            if n.startswith("log_background") and n.endswith("_amplitude")))
-        object.__setattr__(self, "_prior_list", tuple(self._priors.values()))
+        self._set_priors()
         if self.basin is not None:
             blo, bhi = (float(v) for v in self.basin)
             object.__setattr__(self, "basin", (max(blo, lo), min(bhi, hi)))
@@ -388,6 +383,17 @@ class RotationModel:
         config = replace(self.config, background=True)
         return replace(self, periodic=False, basin=None, config=config)
 
+    def _set_priors(self) -> None:
+        """Priors and the names derived from them (on creation and after unpickling)."""
+        priors = self._build_priors()
+        names = tuple(priors)
+        object.__setattr__(self, "_priors", priors)
+        object.__setattr__(self, "_names", names)
+        object.__setattr__(self, "_prior_list", tuple(priors.values()))
+        object.__setattr__(self, "_bg_suffixes", tuple(
+            n[len("log_background"):-len("_amplitude")] for n in names
+            if n.startswith("log_background") and n.endswith("_amplitude")))
+
     def _build_priors(self) -> dict[str, _Prior]:
         c = self.config
         pri: dict[str, _Prior] = {}
@@ -428,10 +434,6 @@ class RotationModel:
     @property
     def has_background(self) -> bool:
         return "log_background_amplitude" in self._priors
-
-    @property
-    def has_background2(self) -> bool:
-        return "log_background2_amplitude" in self._priors
 
     @property
     def background_suffixes(self) -> tuple[str, ...]:
@@ -519,12 +521,10 @@ class RotationModel:
                 secondary_fraction=self.config.max_secondary_fraction
                 * special.expit(col["logit_secondary_fraction"]),
             )
-        if self.has_background:
-            out["background_amplitude_ppt"] = 1e3 * np.exp(col["log_background_amplitude"])
-            out["background_timescale_days"] = np.exp(col["log_background_timescale"])
-        if self.has_background2:
-            out["background2_amplitude_ppt"] = 1e3 * np.exp(col["log_background2_amplitude"])
-            out["background2_timescale_days"] = np.exp(col["log_background2_timescale"])
+        for sx in self.background_suffixes:
+            amplitude = col[f"log_background{sx}_amplitude"]
+            out[f"background{sx}_amplitude_ppt"] = 1e3 * np.exp(amplitude)
+            out[f"background{sx}_timescale_days"] = np.exp(col[f"log_background{sx}_timescale"])
         out["jitter_ppt"] = 1e3 * np.exp(col["log_jitter"])
         out["mean"] = col["mean"].copy()
         return out
@@ -666,9 +666,4 @@ class RotationModel:
     def __setstate__(self, state):
         self.__dict__.update(state)
         object.__setattr__(self, "_var", self.flux_err * self.flux_err)
-        object.__setattr__(self, "_priors", self._build_priors())
-        object.__setattr__(self, "_names", tuple(self._priors))
-        object.__setattr__(self, "_bg_suffixes", tuple(
-            n[len("log_background"):-len("_amplitude")] for n in self._names
-            if n.startswith("log_background") and n.endswith("_amplitude")))
-        object.__setattr__(self, "_prior_list", tuple(self._priors.values()))
+        self._set_priors()
