@@ -22,6 +22,12 @@ with the truth:
 The statistics are for the stars that finished; the table says how many that is. The
 pipeline configuration is ``--config`` (default ``benchmarks/population_bench.toml``).
 
+The run can be made in pieces on different machines: every finished star is kept, with
+the commit of the code that fitted it, in ``results/population_stars.ecsv``; a later run
+with the same seed, stars per class and configuration skips those stars (``--carry``)
+and adds its own, so the committed table grows towards the requested population even
+when each session's work folder is lost.
+
 Usage::
 
     python benchmarks/bench_population.py [--per-class 50] [--seed 7] [--workers 2]
@@ -81,11 +87,13 @@ def _identifier(name: str, cls: str) -> str:
     return f"{name.rsplit('-', 1)[-1]}-{cls}"
 
 
-def _manifest(work: Path) -> Path:
+def _manifest(work: Path, skip=frozenset()) -> Path:
     rows = []
     for cls in CLASSES:
         for path in sorted((work / "lc" / cls).glob("*.fits")):
-            rows.append((_identifier(path.stem, cls), str(path)))
+            name = _identifier(path.stem, cls)
+            if name not in skip:
+                rows.append((name, str(path)))
     path = work / "manifest.csv"
     Table(rows=rows, names=("identifier", "files")).write(path, format="ascii.csv",
                                                          overwrite=True)
@@ -118,18 +126,79 @@ def _filled(col, fill=np.nan):
     return np.asarray(np.ma.filled(np.ma.asarray(col, dtype=float), fill), dtype=float)
 
 
-def summarise(work: Path, out: Path, figure: Path, header: list[str]) -> str:
-    catalog = Table.read(work / "survey" / "catalog.ecsv", format="ascii.ecsv")
-    truth = _truth(work)
-    cat = catalog[[c for c in catalog.colnames]]
+#: Per-star columns kept between runs (the truth columns are re-simulated each time).
+STAR_COLUMNS = ("name", "status", "period", "period_lo68", "period_hi68", "period_lo95",
+                "period_hi95", "period_ls", "period_acf", "detected", "detection_delta_bic",
+                "converged", "cpu_time", "commit")
+
+
+def _git_commit() -> str:
+    """Short commit of the code being run (``unknown`` outside a git checkout)."""
+    import subprocess
+
+    try:
+        out = subprocess.run(["git", "-C", str(HERE), "rev-parse", "--short", "HEAD"],
+                             capture_output=True, text=True, timeout=10, check=True)
+        dirty = subprocess.run(["git", "-C", str(HERE), "status", "--porcelain", "rotinfer"],
+                               capture_output=True, text=True, timeout=10).stdout.strip()
+        return out.stdout.strip() + ("+changes" if dirty else "")
+    except (OSError, subprocess.SubprocessError):
+        return "unknown"
+
+
+def _run_key(seed: int, per_class: int, config: str) -> dict:
+    """What must match for stars of an earlier run to be carried into this one."""
+    import hashlib
+
+    digest = hashlib.sha256(Path(config).read_bytes()).hexdigest()[:16]
+    return {"seed": int(seed), "per_class": int(per_class), "config_sha256": digest}
+
+
+def load_carried(path: Path, key: dict) -> Table | None:
+    """Finished stars of earlier runs with the same key, or None (a mismatch is reported)."""
+    if not path.exists():
+        return None
+    t = Table.read(path, format="ascii.ecsv")
+    found = {k: t.meta.get(k) for k in key}
+    if found != key:
+        print(f"{path}: made with {found}, this run is {key}; not carried", file=sys.stderr)
+        return None
+    return t
+
+
+def _finished(work: Path, commit: str) -> Table | None:
+    path = work / "survey" / "catalog.ecsv"
+    if not path.exists():
+        return None
+    cat = Table.read(path, format="ascii.ecsv")
     cat.rename_column("identifier", "name")
     cat.meta.clear()
-    t = join(truth, cat, keys="name", join_type="inner")
+    cat["commit"] = [commit] * len(cat)
+    return cat[list(STAR_COLUMNS)]
+
+
+def summarise(work: Path, out: Path, figure: Path, header: list[str], *,
+              carried: Table | None = None, commit: str = "unknown",
+              stars_out: Path | None = None, key: dict | None = None) -> str:
+    from astropy.table import vstack
+
+    truth = _truth(work)
+    parts = [p for p in (carried, _finished(work, commit)) if p is not None and len(p)]
+    if not parts:
+        raise SystemExit(f"{work}: no finished stars to summarise")
+    stars = vstack([p[list(STAR_COLUMNS)] for p in parts], metadata_conflicts="silent")
+    stars = stars[np.unique(np.asarray(stars["name"]), return_index=True)[1]]  # one row each
+    stars.meta.clear()
+    stars.meta.update(key or {})
+    if stars_out is not None:
+        stars.write(stars_out, format="ascii.ecsv", overwrite=True)
+    t = join(truth, stars, keys="name", join_type="inner")
     ok = np.array([s == "ok" for s in t["status"]])
     t = t[ok]
     lines = list(header)
+    commits = sorted(set(np.asarray(t["commit"]).tolist()))
     lines.append(f"- stars finished: {len(t)} of {len(truth)} simulated "
-                 f"({int((~ok).sum())} failed)")
+                 f"({int((~ok).sum())} failed); code commits {', '.join(commits)}")
     lines.append("")
     lines.append("| class | stars | with signal | rotinfer within 10 % | "
                  "Lomb-Scargle within 10 % | ACF within 10 % | harmonic errors | "
@@ -179,10 +248,6 @@ def summarise(work: Path, out: Path, figure: Path, header: list[str]) -> str:
     lines.append(f"![completeness]({figure.name})")
     text = "\n".join(lines) + "\n"
     out.write_text(text)
-    per_star = t[["name", "category", "period_min", "period_max", "period", "period_lo95",
-                  "period_hi95", "period_ls", "period_acf", "detected", "converged",
-                  "cpu_time"]]
-    per_star.write(out.with_suffix(".csv"), format="ascii.csv", overwrite=True)
     return text
 
 
@@ -223,20 +288,32 @@ def main(argv=None) -> int:
     ap.add_argument("--out", default=str(HERE / "results" / "population.md"))
     ap.add_argument("--summarise-only", action="store_true",
                     help="only rebuild the table from the survey folder as it is")
+    ap.add_argument("--carry", default=str(HERE / "results" / "population_stars.ecsv"),
+                    help="finished stars of earlier runs (skipped, then counted); rewritten "
+                         "with this run's stars added")
+    ap.add_argument("--commit", default=None,
+                    help="commit recorded for this run's stars (default: git rev-parse)")
     args = ap.parse_args(argv)
     work = Path(args.work)
     out = Path(args.out)
+    key = _run_key(args.seed, args.per_class, args.config)
+    carry = Path(args.carry)
+    carried = load_carried(carry, key)
+    commit = args.commit or _git_commit()
 
     from rotinfer import __version__
     from rotinfer.survey import run_survey
 
+    work.mkdir(parents=True, exist_ok=True)
+    _simulate(work, args.per_class, args.seed)
     if not args.summarise_only:
-        work.mkdir(parents=True, exist_ok=True)
-        _simulate(work, args.per_class, args.seed)
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")  # convergence warnings are in the catalogue
-            run_survey([str(_manifest(work))], out=work / "survey", config=args.config,
-                       seed=args.seed, workers=args.workers, progress=True)
+        skip = frozenset(carried["name"]) if carried is not None else frozenset()
+        manifest = _manifest(work, skip)
+        if len(Table.read(manifest, format="ascii.csv")):
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")  # convergence warnings are in the catalogue
+                run_survey([str(manifest)], out=work / "survey", config=args.config,
+                           seed=args.seed, workers=args.workers, progress=True)
     import celerite2
     import emcee
 
@@ -254,7 +331,8 @@ def main(argv=None) -> int:
         f"- command: python benchmarks/bench_population.py --per-class {args.per_class} "
         f"--seed {args.seed}",
     ]
-    print(summarise(work, out, out.with_name("population_completeness.png"), header))
+    print(summarise(work, out, out.with_name("population_completeness.png"), header,
+                    carried=carried, commit=commit, stars_out=carry, key=key))
     return 0
 
 

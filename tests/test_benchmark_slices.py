@@ -52,20 +52,35 @@ def test_injection_recovery_slice(tmp_path):
     cfg = tmp_path / "tiny.toml"
     cfg.write_text(TINY)
     out = tmp_path / "population.md"
-    rc = bench.main(["--per-class", "1", "--seed", "1", "--workers", "1", "--config", str(cfg),
-                     "--work", str(tmp_path / "work"), "--out", str(out)])
+    stars = tmp_path / "stars.ecsv"
+    common = ["--per-class", "1", "--seed", "1", "--workers", "1", "--config", str(cfg),
+              "--out", str(out), "--carry", str(stars), "--commit", "abc1234"]
+    rc = bench.main([*common, "--work", str(tmp_path / "work")])
     assert rc == 0
     text = out.read_text()
     assert "stars finished: 4 of 4 simulated" in text
+    assert "code commits abc1234" in text
     rows = {line.split("|")[1].strip(): line for line in text.splitlines()
             if line.startswith("| ") and not line.startswith("| class")}
     assert set(rows) == {"easy", "moderate", "hard", "null"}
-    per_star = bench.Table.read(out.with_suffix(".csv"), format="ascii.csv")
+    truth = bench._truth(tmp_path / "work")
+    per_star = bench.join(truth, bench.Table.read(stars, format="ascii.ecsv"), keys="name")
     easy = per_star[per_star["category"] == "easy"][0]
     assert 0.9 * easy["period_min"] <= easy["period"] <= 1.1 * easy["period_max"], easy
     null = per_star[per_star["category"] == "null"][0]
-    assert str(null["detected"]) == "False"  # CSV text
+    assert not null["detected"]
     assert (tmp_path / "population_completeness.png").stat().st_size > 0
+
+    # A later run (fresh work folder, same seed, size and configuration) carries the four
+    # finished stars instead of fitting them again, and reports the same table.
+    rc = bench.main([*common, "--work", str(tmp_path / "later"), "--commit", "def5678"])
+    assert rc == 0
+    assert not (tmp_path / "later" / "survey").exists()  # nothing left to fit
+    later = out.read_text()
+    assert "stars finished: 4 of 4 simulated" in later and "code commits abc1234" in later
+    assert [r for r in later.splitlines() if r.startswith("| easy")] == [rows["easy"]]
+    # ... but not into a run with another seed.
+    assert bench.load_carried(stars, bench._run_key(2, 1, str(cfg))) is None
 
 
 def test_population_summary_counts_exact_cases():
