@@ -54,6 +54,10 @@ def fit_one(sim, config, *, seed: int) -> dict:
         "period": d["period"]["median"], "interval_68": d["period"]["interval_68"],
         "interval_95": d["period"]["interval_95"], "detected": d["detected"],
         "truth": (sim.truth.period_min, sim.truth.period_max),
+        "oscillators": d["detection"].get("periodic_backgrounds"),
+        "delta_bic": d["detection"]["delta_bic"],
+        "rhat_max": max((v for m in d["diagnostics"]["modes"] for v in m["rhat"].values()
+                         if v is not None), default=float("nan")),
     }
 
 

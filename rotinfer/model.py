@@ -12,7 +12,11 @@ The light curve (relative flux, normalised to median 1 per segment by
 * ``background`` (optional, on by default) — one aperiodic SHO with
   ``Q = 1/sqrt(2)`` (Harvey-like granulation profile, Foreman-Mackey et al. 2017
   section 5) that absorbs granulation and slow drifts the rotation term should
-  not have to explain.
+  not have to explain. ``periodic_backgrounds = 2`` gives the rotation model a
+  second one, ordered by damping time (the first the faster), for light curves
+  whose noise has two timescales: with one, such a posterior can have two modes
+  (the oscillator on the fast noise or on the slow) that separate ensembles
+  settle on differently (R-hat far above 1; BENCHMARKS.md, section 1b).
 * white noise — the per-point variance is ``flux_err**2 + jitter**2``. The
   jitter term is always fitted: it matters most when the input had no
   uncertainties and ``prepare`` had to estimate them from the scatter.
@@ -142,6 +146,12 @@ class ModelConfig:
         95 % prior range of the background damping time, days.
     jitter_ppt : [lo, hi]
         95 % prior range of the extra white noise, ppt.
+    periodic_backgrounds : int or "auto"
+        Background oscillators of the rotation model when ``background`` is on: 1
+        (default), 2 (ordered by damping time; the prior on the pair is the shared
+        one truncated to that order and doubled, so it stays normalised), or
+        "auto": 2 where the BIC at the posterior maximum supports the second, else 1
+        (:func:`rotinfer.sample.choose_periodic_backgrounds`).
     max_comparison_backgrounds : int
         Most background oscillators of the aperiodic comparison model (detection
         test), each with the background priors: 2, 3 (default) or 4. The
@@ -162,6 +172,7 @@ class ModelConfig:
     background_timescale_days: tuple[float, ...] = (0.01, 30.0)
     jitter_ppt: tuple[float, ...] = (0.001, 100.0)
     max_comparison_backgrounds: int = 3
+    periodic_backgrounds: int | str = 1
     mean: tuple[float, ...] = (1.0, 0.05)
 
     def __post_init__(self):
@@ -192,6 +203,10 @@ class ModelConfig:
             raise ConfigError(
                 f"[model] max_comparison_backgrounds: allowed 2, 3 or 4, got {n_bg!r}"
             )
+        n_pb = self.periodic_backgrounds
+        if isinstance(n_pb, bool) or n_pb not in (1, 2, "auto"):
+            raise ConfigError(
+                f"[model] periodic_backgrounds: allowed 1, 2 or \"auto\", got {n_pb!r}")
         if not (np.isfinite(self.max_secondary_fraction) and self.max_secondary_fraction > 0):
             raise ConfigError(
                 "[model] max_secondary_fraction: must be positive, "
@@ -393,6 +408,15 @@ class RotationModel:
         object.__setattr__(self, "_bg_suffixes", tuple(
             n[len("log_background"):-len("_amplitude")] for n in names
             if n.startswith("log_background") and n.endswith("_amplitude")))
+        # Several oscillators with one shared prior in the rotation model: ordered by
+        # damping time (the prior truncated to one of the n! labellings, times n! so that
+        # it stays normalised), so that ensembles cannot settle on different labellings.
+        ordered = self.periodic and len(self._bg_suffixes) > 1
+        object.__setattr__(self, "_order_index", tuple(
+            names.index(f"log_background{sx}_timescale") for sx in self._bg_suffixes
+        ) if ordered else ())
+        object.__setattr__(self, "_order_log_factor",
+                           math.lgamma(len(self._bg_suffixes) + 1.0) if ordered else 0.0)
 
     def _build_priors(self) -> dict[str, _Prior]:
         c = self.config
@@ -410,7 +434,9 @@ class RotationModel:
         )
         bg_tau = _lognormal_from_range(*c.background_timescale_days)
         if self.periodic:
-            suffixes = ("",) if c.background else ()
+            # "auto" builds one; rotinfer.sample.choose_periodic_backgrounds adds the second
+            n = 1 if c.periodic_backgrounds == "auto" else c.periodic_backgrounds
+            suffixes = background_suffixes(n) if c.background else ()
         else:
             suffixes = background_suffixes(c.max_comparison_backgrounds)
         for suffix in suffixes:
@@ -559,6 +585,11 @@ class RotationModel:
             period = math.exp(float(theta[0]))
             if not self.basin[0] <= period <= self.basin[1]:
                 return -math.inf
+        if self._order_index:
+            taus = [float(theta[i]) for i in self._order_index]
+            if any(b <= a for a, b in zip(taus, taus[1:], strict=False)):
+                return -math.inf
+            total += self._order_log_factor
         return total if math.isfinite(total) else -math.inf
 
     def _sho_coefficients(self, p):
@@ -643,9 +674,21 @@ class RotationModel:
 
     # ------------------------------------------------------------------ prior
     def sample_prior(self, rng: np.random.Generator, size: int) -> np.ndarray:
-        """Draws from the prior in the unconstrained space, shape (size, ndim)."""
-        cols = [p.sample(rng, size) for p in self._priors.values()]
-        return np.column_stack(cols)
+        """Draws from the prior in the unconstrained space, shape (size, ndim).
+
+        Ordered background oscillators: independent draws of the (amplitude, damping
+        time) pairs sorted by damping time, which is exactly the ordered prior.
+        """
+        draws = np.column_stack([p.sample(rng, size) for p in self._priors.values()])
+        if self._order_index:
+            taus = list(self._order_index)
+            amps = [self._names.index(f"log_background{sx}_amplitude")
+                    for sx in self._bg_suffixes]
+            order = np.argsort(draws[:, taus], axis=1)
+            rows = np.arange(size)[:, None]
+            draws[:, taus] = draws[:, taus][rows, order]
+            draws[:, amps] = draws[:, amps][rows, order]
+        return draws
 
     def simulate(self, theta, rng: np.random.Generator) -> np.ndarray:
         """A flux realisation of the model at ``self.time`` (GP + white noise + mean).

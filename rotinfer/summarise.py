@@ -304,6 +304,10 @@ def detection(posterior: Posterior, config: DetectionConfig) -> dict:
         "false_alarm_rate": config.false_alarm_rate,
         "false_alarm_upper_95": config.false_alarm_upper_95,
         "calibration": config.calibration,
+        "periodic_backgrounds": len(posterior.model.background_suffixes),
+        "aperiodic_backgrounds": (
+            (int(np.size(posterior.aperiodic.theta)) - 2) // 2
+            if posterior.aperiodic is not None else None),
         "note": note,
     }
 
@@ -444,7 +448,8 @@ def summarise(
     )
     units = {
         "secondary_fraction": "", "background_amplitude_ppt": "ppt",
-        "background_timescale_days": "d", "jitter_ppt": "ppt", "mean": "relative flux",
+        "background_timescale_days": "d", "background2_amplitude_ppt": "ppt",
+        "background2_timescale_days": "d", "jitter_ppt": "ppt", "mean": "relative flux",
     }
     nuisance = {
         k: _describe(phys[k], w, map_phys[k][0], units[k]) for k in units if k in phys

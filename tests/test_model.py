@@ -59,22 +59,29 @@ def _dense_covariance(model, theta):
     return cov, p["mean"]
 
 
-def _toy_model(rng, n=150, periodic=True, background=True, max_comparison_backgrounds=2):
+def _toy_model(rng, n=150, periodic=True, background=True, max_comparison_backgrounds=2,
+               periodic_backgrounds=1):
     t = np.sort(rng.uniform(0.0, 20.0, n))
     y = 1.0 + 2e-3 * np.sin(2 * np.pi * t / 3.1) + 3e-4 * rng.standard_normal(n)
     err = rng.uniform(2e-4, 4e-4, n)
-    cfg = ModelConfig(background=background, max_comparison_backgrounds=max_comparison_backgrounds)
+    cfg = ModelConfig(background=background, max_comparison_backgrounds=max_comparison_backgrounds,
+                      periodic_backgrounds=periodic_backgrounds)
     model = RotationModel(t, y, err, config=cfg, period_range=(0.3, 10.0))
     return model if periodic else model.aperiodic()
 
 
 @pytest.mark.parametrize("periodic,background,n_bg",
-                         [(True, True, 2), (True, False, 2), (False, True, 2), (False, True, 3)])
+                         [(True, True, 2), (True, False, 2), (False, True, 2), (False, True, 3),
+                          (True, True, "periodic 2")])
 def test_log_likelihood_matches_dense_multivariate_normal(rng, periodic, background, n_bg):
     # Reference: scipy.stats.multivariate_normal.logpdf on the dense covariance built from
     # the SHO formulas of Foreman-Mackey et al. 2017 eq. 20 (see _dense_covariance).
-    model = _toy_model(rng, periodic=periodic, background=background,
-                       max_comparison_backgrounds=n_bg)
+    if n_bg == "periodic 2":  # rotation term + two ordered background oscillators
+        model = _toy_model(rng, periodic_backgrounds=2)
+        assert model.background_suffixes == ("", "2")
+    else:
+        model = _toy_model(rng, periodic=periodic, background=background,
+                           max_comparison_backgrounds=n_bg)
     if not periodic:
         assert len(model.background_suffixes) == n_bg
     draws = model.sample_prior(rng, 8)
@@ -186,6 +193,38 @@ def test_priors_are_normalised(rng):
         assert total == pytest.approx(1.0, abs=1e-6), name
 
 
+def test_ordered_background_prior_is_normalised_and_sampled(rng):
+    # Two background oscillators in the rotation model: the shared prior truncated to
+    # tau_1 < tau_2 and doubled. Its two-dimensional marginal must integrate to one
+    # (SciPy dblquad), vanish in the wrong order, and prior draws must follow it: the
+    # smaller of two independent normal draws has mean mu - sigma / sqrt(pi) (the
+    # expected minimum of two normals; David & Nagaraja, Order Statistics, 2003).
+    model = _toy_model(rng, periodic_backgrounds=2)
+    i1 = model.names.index("log_background_timescale")
+    i2 = model.names.index("log_background2_timescale")
+    base = model.sample_prior(rng, 1)[0]
+    prior = model._priors["log_background_timescale"]
+    pairs = enumerate(zip(base, model._priors.values(), strict=True))
+    others = sum(p.logpdf(float(v)) for k, (v, p) in pairs if k not in (i1, i2))
+
+    def density(b, a):  # dblquad's inner variable first
+        theta = base.copy()
+        theta[[i1, i2]] = a, b
+        return math.exp(model.log_prior(theta) - others)
+
+    lo, hi = prior.a - 10 * prior.b, prior.a + 10 * prior.b
+    total, _ = integrate.dblquad(density, lo, hi, lambda a: a, lambda a: hi)
+    assert total == pytest.approx(1.0, abs=1e-5)
+    wrong = base.copy()
+    wrong[[i1, i2]] = prior.a + 1.0, prior.a - 1.0
+    assert model.log_prior(wrong) == -math.inf
+    draws = model.sample_prior(rng, 20000)
+    assert np.all(draws[:, i1] < draws[:, i2])
+    assert np.all(np.isfinite([model.log_prior(d) for d in draws[:200]]))
+    expected = prior.a - prior.b / math.sqrt(math.pi)
+    assert draws[:, i1].mean() == pytest.approx(expected, abs=5 * prior.b / math.sqrt(20000))
+
+
 def test_logit_beta_prior_draws_follow_scipy_beta(rng):
     # Reference: scipy.stats.beta (KS test) for u = logistic(x) under a Beta(2, 5) prior.
     cfg = ModelConfig(secondary_fraction_beta=(2.0, 5.0))
@@ -234,6 +273,9 @@ def test_invalid_inputs_and_config():
     for bad in (1, 5, 2.5, True):
         with pytest.raises(ConfigError, match="max_comparison_backgrounds: allowed 2, 3 or 4"):
             ModelConfig(max_comparison_backgrounds=bad)
+    for bad in (0, 3, 1.5, True, "two"):
+        with pytest.raises(ConfigError, match='periodic_backgrounds: allowed 1, 2 or "auto"'):
+            ModelConfig(periodic_backgrounds=bad)
 
 
 def test_simulate_has_model_covariance(rng):

@@ -438,3 +438,81 @@ def test_aperiodic_comparison_takes_as_many_oscillators_as_the_bic_supports(rng)
     assert chosen == [3, 2]
     small = dataclasses.replace(base, config=ModelConfig(max_comparison_backgrounds=2))
     assert fit_aperiodic(small, config=SamplerConfig()).theta.size == 6
+
+
+def test_rotation_model_takes_a_second_background_where_the_bic_supports_it(rng):
+    # Nested models again (common practice; Schwarz 1978): the rotation model with two
+    # ordered background oscillators contains the one with one, and "auto" keeps the
+    # second only when its likelihood gain beats 2 ln N. Data drawn from the model itself
+    # (celerite2's Cholesky factor): rotation + oscillators at 0.05 d and 3 d need two;
+    # rotation + one oscillator does not.
+    import dataclasses
+
+    from rotinfer.model import ModelConfig, RotationModel
+    from rotinfer.sample import choose_periodic_backgrounds, find_modes
+
+    t = np.sort(rng.uniform(0.0, 40.0, 800))
+    auto = ModelConfig(periodic_backgrounds="auto")
+    base = RotationModel(t, np.ones(800), np.full(800, 2e-4), config=auto,
+                         period_range=(0.5, 15.0))
+    assert base.background_suffixes == ("",)  # "auto" starts from one
+    two = dataclasses.replace(base, config=ModelConfig(periodic_backgrounds=2))
+    common = dict(period=4.0, sigma=2e-3, coherence_rotations=20.0, f=0.3, r=0.5,
+                  jitter=1e-5, mean=1.0)
+    truth2 = two.pack(**common, background_sigma=6e-4, background_tau=0.05,
+                      background2_sigma=1.5e-3, background2_tau=3.0)
+    truth1 = base.pack(**common, background_sigma=6e-4, background_tau=0.05)
+    config = SamplerConfig(starts_per_period=1)
+    chosen = []
+    for model, theta in ((two, truth2), (base, truth1)):
+        star = dataclasses.replace(base, flux=model.simulate(theta, rng))
+        modes = find_modes(star, [4.0], config=config, rng=np.random.default_rng(1))
+        picked, picked_modes = choose_periodic_backgrounds(
+            star, modes, [4.0], config=config, rng=np.random.default_rng(2))
+        chosen.append(len(picked.background_suffixes))
+        best = max(picked_modes, key=lambda m: m.log_posterior)
+        assert best.theta.size == picked.ndim
+        assert abs(best.period / 4.0 - 1) < 0.1
+        if chosen[-1] == 2:  # ordered, and the nested fit is never worse than the one
+            tau = [best.theta[picked.names.index(f"log_background{s}_timescale")]
+                   for s in ("", "2")]
+            assert tau[0] < tau[1]
+            assert best.log_posterior >= max(m.log_posterior for m in modes) - 2.0
+    assert chosen == [2, 1]
+
+
+def test_fit_with_auto_backgrounds_resumes_with_the_chosen_model(tmp_path, monkeypatch):
+    # The number of background oscillators chosen by "auto" is stored with the modes:
+    # a run resumed from its checkpoint samples the same (two-oscillator) model and
+    # gives identical draws.
+    import dataclasses
+
+    from rotinfer.model import ModelConfig, RotationModel
+    from rotinfer.sample import fit
+
+    rng = np.random.default_rng(11)
+    t = np.sort(rng.uniform(0.0, 40.0, 500))
+    two = RotationModel(t, np.ones(500), np.full(500, 2e-4),
+                        config=ModelConfig(periodic_backgrounds=2), period_range=(0.5, 15.0))
+    theta = two.pack(period=4.0, sigma=2e-3, coherence_rotations=20.0, f=0.3, r=0.5,
+                     jitter=1e-5, mean=1.0, background_sigma=6e-4, background_tau=0.05,
+                     background2_sigma=1.5e-3, background2_tau=3.0)
+    star = dataclasses.replace(two, flux=two.simulate(theta, rng),
+                               config=ModelConfig(periodic_backgrounds="auto"))
+    cfg = SamplerConfig(n_walkers=24, check_every=50, max_steps=50, warmup_steps=50,
+                        starts_per_period=1, max_sampled_modes=1, tau_multiple=1e4)
+    path = tmp_path / "chains.h5"
+    with pytest.warns(ConvergenceWarning):
+        first = fit(star, [4.0], config=cfg, seed=3, checkpoint_path=path)
+    assert first.model.background_suffixes == ("", "2")
+    assert first.samples.shape[1] == first.model.ndim == 11
+
+    def no_search(*args, **kwargs):
+        raise AssertionError("modes searched again instead of read from the checkpoint")
+
+    monkeypatch.setattr("rotinfer.sample.posterior.find_modes", no_search)
+    monkeypatch.setattr("rotinfer.sample.posterior.choose_periodic_backgrounds", no_search)
+    with pytest.warns(ConvergenceWarning):
+        again = fit(star, [4.0], config=cfg, seed=3, checkpoint_path=path)
+    assert again.model.background_suffixes == ("", "2")
+    assert np.array_equal(first.samples, again.samples)

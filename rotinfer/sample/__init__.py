@@ -10,7 +10,15 @@
 from .checkpoint import Checkpoint
 from .convergence import EnsembleDiagnostics, rank_normalised_split_rhat
 from .ensemble import EnsembleRun, run_ensembles
-from .optimise import Laplace, Mode, find_modes, fit_aperiodic, laplace, relation
+from .optimise import (
+    Laplace,
+    Mode,
+    choose_periodic_backgrounds,
+    find_modes,
+    fit_aperiodic,
+    laplace,
+    relation,
+)
 from .posterior import Posterior, SampledMode, fit, importance_log_evidence
 from .settings import SamplerConfig
 
@@ -23,6 +31,7 @@ __all__ = [
     "Posterior",
     "SampledMode",
     "SamplerConfig",
+    "choose_periodic_backgrounds",
     "find_modes",
     "fit",
     "fit_aperiodic",

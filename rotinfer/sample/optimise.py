@@ -40,7 +40,8 @@ from ..model import RotationModel
 from ._threads import single_blas_thread
 from .settings import SamplerConfig
 
-__all__ = ["Laplace", "Mode", "find_modes", "fit_aperiodic", "laplace", "relation"]
+__all__ = ["Laplace", "Mode", "choose_periodic_backgrounds", "find_modes", "fit_aperiodic",
+           "laplace", "relation"]
 
 
 @dataclass(frozen=True)
@@ -282,6 +283,10 @@ def _starts(model: RotationModel, period: float, n: int, rng: np.random.Generato
             background_sigma=0.3 * signal, background_tau=max(period / 3.0, 0.05),
             jitter=0.5 * noise, mean=level,
         )
+        if len(model.background_suffixes) == 2:
+            # ordered by damping time: a fast one (granulation) and a slow one (drifts)
+            nat.update(background_tau=0.05, background2_sigma=0.3 * signal,
+                       background2_tau=max(period / 3.0, 0.5))
         out.append(model.pack(**nat))
     return out
 
@@ -309,7 +314,8 @@ def _optimise_from(model, x0, config):
 
 @single_blas_thread
 def find_modes(
-    model: RotationModel, candidate_periods, *, config: SamplerConfig, rng: np.random.Generator
+    model: RotationModel, candidate_periods, *, config: SamplerConfig, rng: np.random.Generator,
+    extra_optima=(),
 ) -> tuple[Mode, ...]:
     """Optimise from each candidate period, its half and its double; return distinct modes.
 
@@ -324,6 +330,8 @@ def find_modes(
     config : SamplerConfig
     rng : Generator
         For starts beyond the fixed ones.
+    extra_optima : sequence of (float, ndarray)
+        Optima found elsewhere, ``(log posterior, theta)``, pooled with these.
 
     Returns
     -------
@@ -361,6 +369,7 @@ def find_modes(
             x, lp = _optimise_from(model, x0, config)
             if math.isfinite(lp):
                 optima.append((lp, x))
+    optima.extend((float(lp), np.asarray(x)) for lp, x in extra_optima if math.isfinite(lp))
     optima.sort(key=lambda o: -o[0])
 
     groups: list[list] = []  # [lp, x, count]
@@ -419,6 +428,66 @@ def _escape_saddle(model, x, lp, config, tries: int = 2):
         x, lp = best
         lap, hess = laplace(model, x)
     return x, lp, lap
+
+
+def _bic(model: RotationModel, x) -> float:
+    """Bayesian information criterion k ln N - 2 ln L (Schwarz 1978) at ``x``."""
+    return model.ndim * math.log(model.time.size) - 2.0 * model.log_likelihood(x)
+
+
+@single_blas_thread
+def choose_periodic_backgrounds(
+    model: RotationModel, modes, candidate_periods, *, config: SamplerConfig,
+    rng: np.random.Generator,
+) -> tuple[RotationModel, tuple[Mode, ...]]:
+    """One or two background oscillators in the rotation model, whichever the BIC prefers.
+
+    Each of the best ``max_sampled_modes`` modes of the one-oscillator model (by
+    log posterior) is extended by a weak second oscillator at damping times from
+    0.02 to 20 d (ordered by damping time) and re-optimised, so each nested fit
+    starts where the smaller model's optimum is. When the best of them has a lower
+    BIC than the best one-oscillator mode, the modes are searched again with two
+    oscillators (the nested optima pooled with them) and those are returned.
+
+    Why: a light curve whose noise has two timescales (granulation and slower
+    drifts) gives one oscillator two places to be; separate ensembles then settle
+    on different ones and never agree (R-hat far above 1), while two oscillators
+    describe both and the posterior has one mode (BENCHMARKS.md, section 1b).
+
+    Returns
+    -------
+    (RotationModel, tuple of Mode)
+        The chosen model and its modes (the inputs unchanged when one is kept).
+    """
+    if not (model.periodic and model.has_background and modes
+            and len(model.background_suffixes) == 1):
+        return model, tuple(modes)
+    two = replace(model, config=replace(model.config, periodic_backgrounds=2))
+    ranked = sorted(modes, key=lambda m: -m.log_posterior)
+    nested = []
+    for mode in ranked[: max(config.max_sampled_modes, 1)]:
+        values = dict(zip(model.names, (float(v) for v in mode.theta), strict=True))
+        amp, tau = values["log_background_amplitude"], values["log_background_timescale"]
+        weak = amp + math.log(0.1)
+        for new_tau in (0.02, 0.2, 2.0, 20.0):
+            t_new = math.log(new_tau)
+            if abs(t_new - tau) < math.log(3.0):
+                continue
+            v = dict(values)
+            if t_new < tau:  # the new one is the faster: it takes the first place
+                v.update(log_background_amplitude=weak, log_background_timescale=t_new,
+                         log_background2_amplitude=amp, log_background2_timescale=tau)
+            else:
+                v.update(log_background2_amplitude=weak, log_background2_timescale=t_new)
+            x, lp = _optimise_from(two, np.array([v[n] for n in two.names]), config)
+            if math.isfinite(lp):
+                nested.append((lp, x))
+    best = ranked[0]
+    best2 = max(nested, key=lambda o: o[0]) if nested else None
+    if best2 is None or not _bic(two, best2[1]) < _bic(model, best.theta):
+        return model, tuple(modes)
+    modes2 = find_modes(two, candidate_periods, config=config, rng=rng, extra_optima=nested)
+    return two, modes2
 
 
 def _fit_backgrounds(null: RotationModel) -> list:

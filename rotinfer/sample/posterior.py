@@ -29,6 +29,7 @@ Robert, C. P. & Casella, G. 2004, Monte Carlo Statistical Methods, 2nd ed., ch. 
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 import json
 import math
@@ -43,7 +44,7 @@ from ..model import RotationModel
 from ._threads import single_blas_thread
 from .checkpoint import Checkpoint
 from .ensemble import EnsembleRun, run_ensembles
-from .optimise import Mode, find_modes, fit_aperiodic
+from .optimise import Mode, choose_periodic_backgrounds, find_modes, fit_aperiodic
 from .settings import SamplerConfig
 
 __all__ = ["Posterior", "SampledMode", "fit", "importance_log_evidence"]
@@ -270,15 +271,23 @@ def fit(
     if checkpoint_path is not None:
         ckpt = Checkpoint(checkpoint_path, fingerprint=_fingerprint(model, periods, config, seed))
     stored = ckpt.load_json("modes") if ckpt is not None and ckpt.resumed else None
+    auto = model.config.periodic_backgrounds == "auto"
     if stored is not None:
         modes = tuple(Mode.from_dict(d) for d in stored["modes"])
         aperiodic = Mode.from_dict(stored["aperiodic"]) if stored["aperiodic"] else None
+        if auto and stored.get("periodic_backgrounds", 1) == 2:
+            model = dataclasses.replace(
+                model, config=dataclasses.replace(model.config, periodic_backgrounds=2))
     else:
         modes = find_modes(model, starts, config=config, rng=np.random.default_rng(child(0)))
+        if auto:
+            model, modes = choose_periodic_backgrounds(
+                model, modes, starts, config=config, rng=np.random.default_rng(child(3)))
         aperiodic = fit_aperiodic(model, config=config) if compare_aperiodic else None
         if ckpt is not None:
             ckpt.save_json("modes", {"modes": [m.to_dict() for m in modes],
-                                     "aperiodic": aperiodic.to_dict() if aperiodic else None})
+                                     "aperiodic": aperiodic.to_dict() if aperiodic else None,
+                                     "periodic_backgrounds": len(model.background_suffixes)})
     if not modes:
         raise RuntimeError("no finite optimum of the rotation posterior was found")
 
