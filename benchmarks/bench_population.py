@@ -303,6 +303,7 @@ def main(argv=None) -> int:
 
     from rotinfer import __version__
     from rotinfer.survey import run_survey
+    from rotinfer.survey.run import SurveyInterrupted
 
     work.mkdir(parents=True, exist_ok=True)
     _simulate(work, args.per_class, args.seed)
@@ -312,8 +313,11 @@ def main(argv=None) -> int:
         if len(Table.read(manifest, format="ascii.csv")):
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")  # convergence warnings are in the catalogue
-                run_survey([str(manifest)], out=work / "survey", config=args.config,
-                           seed=args.seed, workers=args.workers, progress=True)
+                try:
+                    run_survey([str(manifest)], out=work / "survey", config=args.config,
+                               seed=args.seed, workers=args.workers, progress=True)
+                except SurveyInterrupted as stop:  # stopped on purpose: keep what finished
+                    print(stop, file=sys.stderr)
     import celerite2
     import emcee
 
