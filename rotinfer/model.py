@@ -398,6 +398,10 @@ class RotationModel:
         config = replace(self.config, background=True)
         return replace(self, periodic=False, basin=None, config=config)
 
+    def with_periodic_backgrounds(self, n: int) -> RotationModel:
+        """The same rotation model with ``n`` (1 or 2) background oscillators."""
+        return replace(self, config=replace(self.config, periodic_backgrounds=n))
+
     def _set_priors(self) -> None:
         """Priors and the names derived from them (on creation and after unpickling)."""
         priors = self._build_priors()

@@ -462,7 +462,7 @@ def choose_periodic_backgrounds(
     if not (model.periodic and model.has_background and modes
             and len(model.background_suffixes) == 1):
         return model, tuple(modes)
-    two = replace(model, config=replace(model.config, periodic_backgrounds=2))
+    two = model.with_periodic_backgrounds(2)
     ranked = sorted(modes, key=lambda m: -m.log_posterior)
     nested = []
     for mode in ranked[: max(config.max_sampled_modes, 1)]:
@@ -547,11 +547,9 @@ def fit_aperiodic(model: RotationModel, *, config: SamplerConfig) -> Mode:
     by ln n! to count them all (exact when they are well separated, too high by at
     most ln n! when they overlap).
     """
-    n_points = model.time.size
     fits = []
     for null, lp, x in _fit_backgrounds(model.aperiodic()):
-        loglike = null.log_likelihood(x)
-        fits.append((null.ndim * math.log(n_points) - 2.0 * loglike, null, lp, x, loglike))
+        fits.append((_bic(null, x), null, lp, x, null.log_likelihood(x)))
     _, null, lp, x, loglike = min(fits, key=lambda f: f[0])
     lap, _ = laplace(null, x)
     if lap.valid:

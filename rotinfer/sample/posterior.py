@@ -29,7 +29,6 @@ Robert, C. P. & Casella, G. 2004, Monte Carlo Statistical Methods, 2nd ed., ch. 
 
 from __future__ import annotations
 
-import dataclasses
 import hashlib
 import json
 import math
@@ -276,8 +275,7 @@ def fit(
         modes = tuple(Mode.from_dict(d) for d in stored["modes"])
         aperiodic = Mode.from_dict(stored["aperiodic"]) if stored["aperiodic"] else None
         if auto and stored.get("periodic_backgrounds", 1) == 2:
-            model = dataclasses.replace(
-                model, config=dataclasses.replace(model.config, periodic_backgrounds=2))
+            model = model.with_periodic_backgrounds(2)
     else:
         modes = find_modes(model, starts, config=config, rng=np.random.default_rng(child(0)))
         if auto:
