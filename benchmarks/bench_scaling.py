@@ -57,8 +57,13 @@ def dense_log_likelihood(model: RotationModel, theta, t, y, err) -> float:
     cov = kernel.get_value(tau)
     del tau
     cov[np.diag_indices_from(cov)] += err**2 + p["jitter"] ** 2
+    if "mean" in p:
+        mean = p["mean"]
+    else:  # integrated out under N(mu0, s0^2): covariance K + s0^2 (R&W 2006, section 2.7)
+        mean, s0 = model.config.mean
+        cov += s0**2
     factor = linalg.cho_factor(cov, lower=True, overwrite_a=True, check_finite=False)
-    r = y - p["mean"]
+    r = y - mean
     alpha = linalg.cho_solve(factor, r, check_finite=False)
     logdet = 2.0 * np.sum(np.log(np.diag(factor[0])))
     return float(-0.5 * (r @ alpha + logdet + len(t) * np.log(2 * np.pi)))

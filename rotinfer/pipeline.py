@@ -13,7 +13,9 @@ A star's result folder holds:
     length n per reported quantity — ``period`` (d), ``amplitude_ppt``,
     ``coherence_days``, ``coherence_rotations``, ``secondary_fraction``,
     ``background_amplitude_ppt``, ``background_timescale_days`` (d),
-    ``jitter_ppt``, ``mean`` — plus ``weight`` (sums to 1; draws of a mode carry
+    ``jitter_ppt`` and, only when ``[model] marginalise_mean = false``, ``mean``
+    (by default the mean level is integrated out, not sampled) — plus ``weight``
+    (sums to 1; draws of a mode carry
     its probability, so use weighted statistics), ``mode`` (index into
     ``summary.json``'s ``diagnostics.modes``), ``theta`` (n x ndim
     unconstrained parameters) and ``names`` (their names).

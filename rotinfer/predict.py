@@ -181,5 +181,9 @@ def predict(model, theta, new_time=None, *,
     if not math.isfinite(jitter):
         raise InputError(model.source, "non-finite jitter in the parameters to predict with")
     new_time = model.time if new_time is None else new_time
+    # an integrated-out mean enters at its conditional posterior mean, which gives the
+    # predictive mean of Rasmussen & Williams (2006) eq. 2.41; its small variance
+    # (mean_posterior's sd squared) is left out of ``sd``
+    mean, _ = model.mean_posterior(theta)
     return predict_arrays(model.kernel(theta), model.time, model.flux, variance, new_time,
-                          mean=p["mean"], max_bytes=max_bytes, source=model.source)
+                          mean=mean, max_bytes=max_bytes, source=model.source)

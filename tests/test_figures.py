@@ -133,8 +133,17 @@ def test_model_prediction_adds_jitter_to_the_white_noise(prepared, posterior):
     p = model.unpack(theta)
     tn = np.linspace(1.0, 2.0, 11)
     pred = predict(model, theta, tn)
-    mu_ref, var_ref = _dense_prediction(model.kernel(theta), model.time, model.flux,
-                                        model.flux_err**2 + p["jitter"] ** 2, tn, p["mean"])
+    var = model.flux_err**2 + p["jitter"] ** 2
+    assert "mean" not in p  # integrated out: its posterior mean given theta, computed
+    # densely (generalised least squares with the N(mu0, s0^2) prior; Rasmussen & Williams
+    # 2006, eq. 2.42), enters the predictive mean (eq. 2.41)
+    kernel = model.kernel(theta)
+    factor = linalg.cho_factor(kernel.get_value(model.time[:, None] - model.time[None, :])
+                               + np.diag(var), lower=True)
+    mu0, s0 = model.config.mean
+    k_inv_one = linalg.cho_solve(factor, np.ones(model.time.size))
+    mean = (k_inv_one @ model.flux + mu0 / s0**2) / (k_inv_one.sum() + 1 / s0**2)
+    mu_ref, var_ref = _dense_prediction(kernel, model.time, model.flux, var, tn, mean)
     np.testing.assert_allclose(pred.mean, mu_ref, rtol=0, atol=1e-9)
     np.testing.assert_allclose(pred.sd, np.sqrt(var_ref), rtol=1e-6)
 
@@ -264,7 +273,9 @@ def test_traces_one_column_per_mode_one_colour_per_ensemble(prepared):
     fig = plot_traces(two, truth={"period": PERIOD})
     reported = two.model.physical(two.samples[:1])
     n_rows = sum(key in reported for key, _ in TRACE_QUANTITIES)
-    assert n_rows == 8  # period, amplitude, coherence, f, background x 2, jitter, mean
+    # period, amplitude, coherence, f, background amplitude and time, jitter (the mean is
+    # integrated out, not sampled)
+    assert n_rows == 7
     assert len(fig.axes) == n_rows * 2
     top_left = fig.axes[0]
     assert top_left.get_ylabel() == "Period (d)"

@@ -56,38 +56,46 @@ def _dense_covariance(model, theta):
             w0 = 2 * q / p[key + "_tau"]
             cov += _sho_kernel(lag, p[key + "_sigma"] ** 2 / (w0 * q), w0, q)
     cov[np.diag_indices_from(cov)] += model.flux_err**2 + p["jitter"] ** 2
-    return cov, p["mean"]
+    return cov, p.get("mean")
 
 
 def _toy_model(rng, n=150, periodic=True, background=True, max_comparison_backgrounds=2,
-               periodic_backgrounds=1):
+               periodic_backgrounds=1, marginalise_mean=True):
     t = np.sort(rng.uniform(0.0, 20.0, n))
     y = 1.0 + 2e-3 * np.sin(2 * np.pi * t / 3.1) + 3e-4 * rng.standard_normal(n)
     err = rng.uniform(2e-4, 4e-4, n)
     cfg = ModelConfig(background=background, max_comparison_backgrounds=max_comparison_backgrounds,
-                      periodic_backgrounds=periodic_backgrounds)
+                      periodic_backgrounds=periodic_backgrounds, marginalise_mean=marginalise_mean)
     model = RotationModel(t, y, err, config=cfg, period_range=(0.3, 10.0))
     return model if periodic else model.aperiodic()
 
 
+@pytest.mark.parametrize("marginalise", [True, False])
 @pytest.mark.parametrize("periodic,background,n_bg",
                          [(True, True, 2), (True, False, 2), (False, True, 2), (False, True, 3),
                           (True, True, "periodic 2")])
-def test_log_likelihood_matches_dense_multivariate_normal(rng, periodic, background, n_bg):
+def test_log_likelihood_matches_dense_multivariate_normal(rng, periodic, background, n_bg,
+                                                          marginalise):
     # Reference: scipy.stats.multivariate_normal.logpdf on the dense covariance built from
-    # the SHO formulas of Foreman-Mackey et al. 2017 eq. 20 (see _dense_covariance).
+    # the SHO formulas of Foreman-Mackey et al. 2017 eq. 20 (see _dense_covariance). With
+    # the mean integrated out under its N(mu0, s0^2) prior the data are
+    # N(mu0, K + s0^2 1 1^T) (Rasmussen & Williams 2006, section 2.7).
     if n_bg == "periodic 2":  # rotation term + two ordered background oscillators
-        model = _toy_model(rng, periodic_backgrounds=2)
+        model = _toy_model(rng, periodic_backgrounds=2, marginalise_mean=marginalise)
         assert model.background_suffixes == ("", "2")
     else:
         model = _toy_model(rng, periodic=periodic, background=background,
-                           max_comparison_backgrounds=n_bg)
+                           max_comparison_backgrounds=n_bg, marginalise_mean=marginalise)
     if not periodic:
         assert len(model.background_suffixes) == n_bg
+    assert ("mean" in model.names) is not marginalise
     draws = model.sample_prior(rng, 8)
     checked = 0
     for theta in draws:
         cov, mean = _dense_covariance(model, theta)
+        if marginalise:
+            mean, sd = model.config.mean
+            cov = cov + sd**2
         ref = stats.multivariate_normal.logpdf(model.flux, mean=np.full(model.flux.size, mean),
                                                cov=cov)
         got = model.log_likelihood(theta)
@@ -101,13 +109,45 @@ def test_log_likelihood_matches_celerite2_gaussian_process(rng):
     # kernel built from celerite2's own RotationTerm and SHOTerm classes (model.kernel).
     import celerite2
 
-    model = _toy_model(rng, n=400)
+    model = _toy_model(rng, n=400, marginalise_mean=False)
     for theta in model.sample_prior(rng, 10):
         p = model.unpack(theta)
         gp = celerite2.GaussianProcess(model.kernel(theta), mean=p["mean"])
         gp.compute(model.time, diag=model.flux_err**2 + p["jitter"] ** 2)
         assert model.log_likelihood(theta) == pytest.approx(gp.log_likelihood(model.flux),
                                                             rel=1e-10)
+
+
+def test_marginal_likelihood_integrates_the_sampled_mean(rng):
+    # Reference: SciPy quadrature (Simpson's rule on a fine grid). The likelihood with the
+    # mean integrated out equals the integral over the mean of (likelihood with that mean)
+    # x (its normal prior), and the conditional posterior of the mean (mean_posterior) has
+    # that integrand's first two moments (Rasmussen & Williams 2006, eq. 2.42).
+    sampled = _toy_model(rng, n=300, marginalise_mean=False)
+    marginal = _toy_model(rng, n=300)
+    marginal = RotationModel(sampled.time, sampled.flux, sampled.flux_err,
+                             config=marginal.config, period_range=sampled.period_range)
+    mu0, s0 = marginal.config.mean
+    for theta in marginal.sample_prior(rng, 4):
+        ref_ll = marginal.log_likelihood(theta)
+        centre, spread = marginal.mean_posterior(theta)
+        assert 0 < spread < s0
+
+        def joint(m, theta=theta):
+            full = np.append(theta, m)  # "mean" is the last parameter when sampled
+            return sampled.log_likelihood(full) + stats.norm.logpdf(m, mu0, s0)
+
+        peak = joint(centre)
+        grid = np.linspace(centre - 12 * spread, centre + 12 * spread, 2001)
+        density = np.exp(np.array([joint(m) for m in grid]) - peak)
+
+        def moment(k, density=density, grid=grid, centre=centre):
+            return integrate.simpson((grid - centre) ** k * density, x=grid)
+
+        mass, first, second = moment(0), moment(1), moment(2)
+        assert ref_ll == pytest.approx(peak + math.log(mass), abs=1e-6)
+        assert abs(first / mass) < 1e-5 * spread
+        assert math.sqrt(second / mass) == pytest.approx(spread, rel=1e-5)
 
 
 def test_log_prob_is_prior_plus_likelihood(rng):
@@ -141,7 +181,7 @@ def test_non_finite_likelihood_is_minus_inf(rng):
     tiny[model.names.index("log_coherence")] = -800.0  # Q1 -> 1/2 exactly: division by zero
     assert model(tiny) == -math.inf
     nan = theta.copy()
-    nan[model.names.index("mean")] = np.nan
+    nan[model.names.index("log_jitter")] = np.nan
     assert model(nan) == -math.inf
     outside = theta.copy()
     outside[0] = math.log(20.0)  # above the 10 d upper period limit
@@ -282,11 +322,18 @@ def test_simulate_has_model_covariance(rng):
     # The simulated flux has the model's covariance: the empirical covariance of many
     # draws matches the dense covariance built from the published formulas (Monte Carlo
     # error ~ sqrt(2/n) of the variance).
+    # With the mean integrated out it is drawn from its prior, so the draws have the
+    # covariance K + s0^2 (Rasmussen & Williams 2006, section 2.7) about mu0.
     t = np.linspace(0, 5, 12)
-    model = RotationModel(t, np.ones(12), np.full(12, 1e-3), period_range=(0.5, 5))
-    theta = model.pack(period=2.0, sigma=2e-3, coherence_rotations=3.0, f=0.4, r=0.5,
-                       background_sigma=1e-3, background_tau=0.5, jitter=5e-4, mean=1.0)
-    sims = np.array([model.simulate(theta, rng) for _ in range(4000)])
-    cov, mean = _dense_covariance(model, theta)
-    assert np.allclose(sims.mean(axis=0), mean, atol=5 * np.sqrt(cov.max() / 4000))
-    assert np.allclose(np.cov(sims.T), cov, atol=6 * np.sqrt(2 / 4000) * cov.max())
+    for marginalise in (False, True):
+        model = RotationModel(t, np.ones(12), np.full(12, 1e-3), period_range=(0.5, 5),
+                              config=ModelConfig(marginalise_mean=marginalise,
+                                                 mean=(1.0, 2e-3)))
+        theta = model.pack(period=2.0, sigma=2e-3, coherence_rotations=3.0, f=0.4, r=0.5,
+                           background_sigma=1e-3, background_tau=0.5, jitter=5e-4, mean=1.0)
+        sims = np.array([model.simulate(theta, rng) for _ in range(4000)])
+        cov, mean = _dense_covariance(model, theta)
+        if marginalise:
+            mean, cov = model.config.mean[0], cov + model.config.mean[1] ** 2
+        assert np.allclose(sims.mean(axis=0), mean, atol=5 * np.sqrt(cov.max() / 4000))
+        assert np.allclose(np.cov(sims.T), cov, atol=6 * np.sqrt(2 / 4000) * cov.max())

@@ -67,8 +67,9 @@ def _posterior(rng, periods_probs, n=4000):
         parts.append(s)
         weights.append(np.full(len(s), prob / len(s)))
         labels.append(np.full(len(s), k))
-    aperiodic = Mode(theta=np.zeros(6), period=math.nan, log_posterior=50.0,
-                     log_likelihood=50.0, laplace=Laplace(45.0, np.eye(6), True))
+    # two background oscillators, jitter (the mean is integrated out)
+    aperiodic = Mode(theta=np.zeros(5), period=math.nan, log_posterior=50.0,
+                     log_likelihood=50.0, laplace=Laplace(45.0, np.eye(5), True))
     return Posterior(model=model, samples=np.concatenate(parts), weights=np.concatenate(weights),
                      mode_of_sample=np.concatenate(labels), modes=tuple(modes),
                      sampled=tuple(sampled), aperiodic=aperiodic, converged=True)
@@ -117,9 +118,10 @@ def test_detection_statistics():
     # BIC = k ln N - 2 ln L (Schwarz 1978): delta = 2 (lnL_p - lnL_a) - (k_p - k_a) ln N.
     post = _posterior(np.random.default_rng(2), [(3.0, 1.0)])
     n = post.model.time.size
-    # periodic: 9 parameters; aperiodic: 2 per background oscillator (two in this
-    # posterior's comparison mode), jitter, mean
-    k_p, k_a = 9, 6
+    # periodic: 8 parameters; aperiodic: 2 per background oscillator (two in this
+    # posterior's comparison mode), jitter (the mean is integrated out in both)
+    assert post.model.ndim == 8
+    k_p, k_a = 8, 5
     expected = 2 * (post.modes[0].log_likelihood - post.aperiodic.log_likelihood) - (
         k_p - k_a) * math.log(n)
     det = detection(post, DetectionConfig(threshold=expected - 1))
