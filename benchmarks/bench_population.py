@@ -26,7 +26,10 @@ The run can be made in pieces on different machines: every finished star is kept
 the commit of the code that fitted it, in ``results/population_stars.ecsv``; a later run
 with the same seed, stars per class and configuration skips those stars (``--carry``)
 and adds its own, so the committed table grows towards the requested population even
-when each session's work folder is lost.
+when each session's work folder is lost. "The same configuration" means the same file
+and the same resolved options (``rotinfer.config.config_hash`` of every stage's
+settings, defaults included), so a changed default or a new model option starts the
+table afresh.
 
 Usage::
 
@@ -147,11 +150,17 @@ def _git_commit() -> str:
 
 
 def _run_key(seed: int, per_class: int, config: str) -> dict:
-    """What must match for stars of an earlier run to be carried into this one."""
+    """What must match for stars of an earlier run to be carried into this one: the seed,
+    the stars per class, the configuration file and its resolved options (defaults
+    included)."""
     import hashlib
 
+    from rotinfer.config import config_hash
+    from rotinfer.pipeline import load_run_config
+
     digest = hashlib.sha256(Path(config).read_bytes()).hexdigest()[:16]
-    return {"seed": int(seed), "per_class": int(per_class), "config_sha256": digest}
+    return {"seed": int(seed), "per_class": int(per_class), "config_sha256": digest,
+            "resolved_config": config_hash(load_run_config(config))}
 
 
 def load_carried(path: Path, key: dict) -> Table | None:
