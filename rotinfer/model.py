@@ -161,10 +161,10 @@ class ModelConfig:
     jitter_ppt : [lo, hi]
         95 % prior range of the extra white noise, ppt.
     periodic_backgrounds : int or "auto"
-        Background oscillators of the rotation model when ``background`` is on: 1
-        (default), 2 (ordered by damping time; the prior on the pair is the shared
-        one truncated to that order and doubled, so it stays normalised), or
-        "auto": 2 where the BIC at the posterior maximum supports the second, else 1
+        Background oscillators of the rotation model when ``background`` is on: 1,
+        2 (ordered by damping time; the prior on the pair is the shared one truncated
+        to that order and doubled, so it stays normalised), or "auto" (default): 2
+        where the BIC at the posterior maximum supports the second, else 1
         (:func:`rotinfer.sample.choose_periodic_backgrounds`).
     max_comparison_backgrounds : int
         Most background oscillators of the aperiodic comparison model (detection
@@ -189,7 +189,7 @@ class ModelConfig:
     background_timescale_days: tuple[float, ...] = (0.01, 30.0)
     jitter_ppt: tuple[float, ...] = (0.001, 100.0)
     max_comparison_backgrounds: int = 3
-    periodic_backgrounds: int | str = 1
+    periodic_backgrounds: int | str = "auto"
     mean: tuple[float, ...] = (1.0, 0.05)
     marginalise_mean: bool = True
 
@@ -478,7 +478,14 @@ class RotationModel:
 
     @property
     def ndim(self) -> int:
+        """Number of sampled (unconstrained) parameters."""
         return len(self._priors)
+
+    @property
+    def n_parameters(self) -> int:
+        """Free parameters counted by information criteria: :attr:`ndim`, plus the mean
+        when it is integrated out (see :meth:`profile_log_likelihood`)."""
+        return len(self._priors) + (1 if self.config.marginalise_mean else 0)
 
     @property
     def has_background(self) -> bool:
@@ -670,18 +677,37 @@ class RotationModel:
         ln det = ln det K + ln(1 + s0^2 A) (determinant lemma) and the quadratic
         form is C - s0^2 B^2 / (1 + s0^2 A) (Sherman-Morrison).
         """
+        return self._log_likelihood(theta, profile=False)
+
+    def profile_log_likelihood(self, theta) -> float:
+        """Log likelihood with the mean at its maximum-likelihood value given the rest.
+
+        What information criteria need (a maximised likelihood, the mean counted among
+        the :attr:`n_parameters`): with the mean integrated out, it is set to the
+        generalised-least-squares value mu0 + B / A (the notation of
+        :meth:`log_likelihood`), where ln L = -1/2 (ln det K + n ln 2 pi + C - B^2 / A);
+        with the mean sampled this is :meth:`log_likelihood` itself. ``-inf`` for any
+        non-finite result.
+        """
+        return self._log_likelihood(theta, profile=True)
+
+    def _log_likelihood(self, theta, *, profile: bool) -> float:
         try:
             with np.errstate(all="ignore"):
                 p = self.unpack(theta)
                 d, z = self._factor_solve(p)
                 if self.config.marginalise_mean:
                     zr, z1 = z[:, 0], z[:, 1]
-                    s2 = self.config.mean[1] ** 2
                     a_ = float((z1 * z1 / d).sum())
                     b_ = float((z1 * zr / d).sum())
                     c_ = float((zr * zr / d).sum())
-                    quad = c_ - s2 * b_ * b_ / (1.0 + s2 * a_)
-                    logdet = float(np.log(d).sum()) + math.log1p(s2 * a_)
+                    logdet = float(np.log(d).sum())
+                    if profile:
+                        quad = c_ - b_ * b_ / a_
+                    else:
+                        s2 = self.config.mean[1] ** 2
+                        quad = c_ - s2 * b_ * b_ / (1.0 + s2 * a_)
+                        logdet += math.log1p(s2 * a_)
                 else:
                     r = z[:, 0]
                     quad = float((r * r / d).sum())

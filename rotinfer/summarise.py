@@ -264,8 +264,10 @@ def detection_statistics(model, modes, aperiodic) -> tuple[float, float]:
         return math.nan, math.nan
     n = model.time.size
     best = max(modes, key=lambda m: m.log_posterior)
-    # The comparison model's size is the one fit_aperiodic chose (its theta's length).
-    k_p, k_a = model.ndim, int(np.size(aperiodic.theta))
+    # The comparison model's size is the one fit_aperiodic chose (its theta's length), plus
+    # the mean when it is integrated out (counted by both, as model.n_parameters does).
+    k_p = model.n_parameters
+    k_a = int(np.size(aperiodic.theta)) + (model.n_parameters - model.ndim)
     delta_bic = 2.0 * (best.log_likelihood - aperiodic.log_likelihood) - (k_p - k_a) * math.log(n)
     valid = [m.log_evidence for m in modes if m.laplace.valid]
     if valid and aperiodic.laplace.valid:

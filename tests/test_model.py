@@ -150,6 +150,25 @@ def test_marginal_likelihood_integrates_the_sampled_mean(rng):
         assert math.sqrt(second / mass) == pytest.approx(spread, rel=1e-5)
 
 
+def test_profile_likelihood_maximises_the_sampled_mean(rng):
+    # Reference: scipy.optimize.minimize_scalar over the mean of the sampled-mean
+    # likelihood. Information criteria use this maximum, and count the mean.
+    from scipy import optimize
+
+    sampled = _toy_model(rng, n=300, marginalise_mean=False)
+    marginal = RotationModel(sampled.time, sampled.flux, sampled.flux_err,
+                             config=ModelConfig(), period_range=sampled.period_range)
+    assert marginal.n_parameters == marginal.ndim + 1 == sampled.n_parameters == sampled.ndim
+    for theta in marginal.sample_prior(rng, 4):
+        centre, spread = marginal.mean_posterior(theta)
+        res = optimize.minimize_scalar(
+            lambda m, theta=theta: -sampled.log_likelihood(np.append(theta, m)),
+            bracket=(centre - spread, centre + spread), tol=1e-12)
+        assert marginal.profile_log_likelihood(theta) == pytest.approx(-res.fun, abs=1e-6)
+        full = np.append(theta, res.x)
+        assert sampled.profile_log_likelihood(full) == sampled.log_likelihood(full)
+
+
 def test_log_prob_is_prior_plus_likelihood(rng):
     model = _toy_model(rng)
     theta = model.sample_prior(rng, 1)[0]

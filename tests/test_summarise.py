@@ -118,10 +118,11 @@ def test_detection_statistics():
     # BIC = k ln N - 2 ln L (Schwarz 1978): delta = 2 (lnL_p - lnL_a) - (k_p - k_a) ln N.
     post = _posterior(np.random.default_rng(2), [(3.0, 1.0)])
     n = post.model.time.size
-    # periodic: 8 parameters; aperiodic: 2 per background oscillator (two in this
-    # posterior's comparison mode), jitter (the mean is integrated out in both)
+    # periodic: 8 sampled parameters; aperiodic: 2 per background oscillator (two in this
+    # posterior's comparison mode) and jitter; the mean, integrated out in both, counts in
+    # both (its maximum-likelihood value enters ln L)
     assert post.model.ndim == 8
-    k_p, k_a = 8, 5
+    k_p, k_a = 9, 6
     expected = 2 * (post.modes[0].log_likelihood - post.aperiodic.log_likelihood) - (
         k_p - k_a) * math.log(n)
     det = detection(post, DetectionConfig(threshold=expected - 1))

@@ -19,7 +19,7 @@ from .optimise import (
     laplace,
     relation,
 )
-from .posterior import Posterior, SampledMode, fit, importance_log_evidence
+from .posterior import Posterior, SampledMode, fit, importance_log_evidence, optimise_star
 from .settings import SamplerConfig
 
 __all__ = [
@@ -37,6 +37,7 @@ __all__ = [
     "fit_aperiodic",
     "importance_log_evidence",
     "laplace",
+    "optimise_star",
     "rank_normalised_split_rhat",
     "relation",
     "run_ensembles",

@@ -75,8 +75,13 @@ class Mode:
         Position (unconstrained parameters).
     period : float
         Period at the maximum, days (NaN for the aperiodic model).
-    log_posterior, log_likelihood : float
-        At the maximum (the posterior is prior x likelihood, normalised priors).
+    log_posterior : float
+        At the maximum (the posterior is prior x likelihood, normalised priors; with the
+        mean integrated out, the marginal posterior).
+    log_likelihood : float
+        At the maximum, with the mean at its maximum-likelihood value when it is
+        integrated out (:meth:`RotationModel.profile_log_likelihood`): what the
+        information criterion of the detection test uses.
     laplace : Laplace
     n_optima : int
         How many optimisations ended in this mode.
@@ -399,7 +404,7 @@ def find_modes(
     occam = float(np.median(occams)) if occams else math.nan
     modes = [
         Mode(theta=np.array(x), period=math.exp(x[0]), log_posterior=float(lp),
-             log_likelihood=model.log_likelihood(x), laplace=lap, n_optima=count,
+             log_likelihood=model.profile_log_likelihood(x), laplace=lap, n_optima=count,
              occam=occam)
         for lp, x, count, lap in merged
     ]
@@ -431,8 +436,12 @@ def _escape_saddle(model, x, lp, config, tries: int = 2):
 
 
 def _bic(model: RotationModel, x) -> float:
-    """Bayesian information criterion k ln N - 2 ln L (Schwarz 1978) at ``x``."""
-    return model.ndim * math.log(model.time.size) - 2.0 * model.log_likelihood(x)
+    """Bayesian information criterion k ln N - 2 ln L (Schwarz 1978) at ``x``: k counts the
+    mean when it is integrated out, and L is then maximised in it
+    (:meth:`RotationModel.profile_log_likelihood`), so the statistic is the same as with
+    the mean sampled (up to where the optimum lies)."""
+    return (model.n_parameters * math.log(model.time.size)
+            - 2.0 * model.profile_log_likelihood(x))
 
 
 @single_blas_thread
@@ -549,7 +558,7 @@ def fit_aperiodic(model: RotationModel, *, config: SamplerConfig) -> Mode:
     """
     fits = []
     for null, lp, x in _fit_backgrounds(model.aperiodic()):
-        fits.append((_bic(null, x), null, lp, x, null.log_likelihood(x)))
+        fits.append((_bic(null, x), null, lp, x, null.profile_log_likelihood(x)))
     _, null, lp, x, loglike = min(fits, key=lambda f: f[0])
     lap, _ = laplace(null, x)
     if lap.valid:

@@ -46,7 +46,7 @@ from .ensemble import EnsembleRun, run_ensembles
 from .optimise import Mode, choose_periodic_backgrounds, find_modes, fit_aperiodic
 from .settings import SamplerConfig
 
-__all__ = ["Posterior", "SampledMode", "fit", "importance_log_evidence"]
+__all__ = ["Posterior", "SampledMode", "fit", "importance_log_evidence", "optimise_star"]
 
 # Sampler settings that do not change the chains (a checkpoint made with other
 # values of these can be resumed, e.g. to extend a run that hit its cap).
@@ -216,6 +216,45 @@ def _thin(run: EnsembleRun) -> np.ndarray:
     return np.concatenate(parts, axis=0)
 
 
+def _starts_of(candidates):
+    """(periods, starts): plain start periods, and what :func:`find_modes` is given (a
+    CandidateSet as it is, since it already holds the halves and doubles)."""
+    periods = [float(p) for p in (
+        candidates.periods() if hasattr(candidates, "periods") else candidates)]
+    starts = candidates if hasattr(candidates, "candidates") else periods
+    return periods, starts
+
+
+@single_blas_thread
+def optimise_star(model: RotationModel, candidates, *, config: SamplerConfig, seed: int = 0,
+                  compare_aperiodic: bool = True):
+    """The optimisation stage of :func:`fit`: modes, background choice, comparison model.
+
+    Finds the modes from the candidates (:func:`find_modes`), chooses one or two
+    background oscillators where ``[model] periodic_backgrounds = "auto"``
+    (:func:`choose_periodic_backgrounds`) and optimises the aperiodic comparison model
+    (:func:`fit_aperiodic`), with the same random streams as :func:`fit`, so the
+    detection calibration (``benchmarks/calibrate_detection.py``) computes exactly the
+    statistic a fit reports.
+
+    Returns
+    -------
+    (RotationModel, tuple of Mode, Mode or None)
+        The rotation model chosen, its modes (best first) and the aperiodic maximum.
+    """
+    _, starts = _starts_of(candidates)
+    root = np.random.SeedSequence(int(seed))
+    modes = find_modes(model, starts, config=config,
+                       rng=np.random.default_rng(np.random.SeedSequence(root.entropy,
+                                                                        spawn_key=(0,))))
+    if model.config.periodic_backgrounds == "auto":
+        model, modes = choose_periodic_backgrounds(
+            model, modes, starts, config=config,
+            rng=np.random.default_rng(np.random.SeedSequence(root.entropy, spawn_key=(3,))))
+    aperiodic = fit_aperiodic(model, config=config) if compare_aperiodic else None
+    return model, modes, aperiodic
+
+
 @single_blas_thread
 def fit(
     model: RotationModel,
@@ -257,10 +296,7 @@ def fit(
         When a mode's ensembles reach ``max_steps`` without converging.
     """
     config = config or SamplerConfig()
-    # a CandidateSet goes to find_modes as it is (it already holds halves and doubles)
-    periods = [float(p) for p in (
-        candidates.periods() if hasattr(candidates, "periods") else candidates)]
-    starts = candidates if hasattr(candidates, "candidates") else periods
+    periods, starts = _starts_of(candidates)
     root = np.random.SeedSequence(int(seed))
 
     def child(*key):
@@ -277,11 +313,8 @@ def fit(
         if auto and stored.get("periodic_backgrounds", 1) == 2:
             model = model.with_periodic_backgrounds(2)
     else:
-        modes = find_modes(model, starts, config=config, rng=np.random.default_rng(child(0)))
-        if auto:
-            model, modes = choose_periodic_backgrounds(
-                model, modes, starts, config=config, rng=np.random.default_rng(child(3)))
-        aperiodic = fit_aperiodic(model, config=config) if compare_aperiodic else None
+        model, modes, aperiodic = optimise_star(model, candidates, config=config, seed=seed,
+                                                compare_aperiodic=compare_aperiodic)
         if ckpt is not None:
             ckpt.save_json("modes", {"modes": [m.to_dict() for m in modes],
                                      "aperiodic": aperiodic.to_dict() if aperiodic else None,
