@@ -35,6 +35,12 @@ Usage::
 
     python benchmarks/bench_population.py [--per-class 50] [--seed 7] [--workers 2]
         [--work benchmarks/work/population] [--summarise-only]
+        [--compare results/population_stars_3519718.ecsv]
+
+``--compare`` sets the stars of this run beside the same stars (same names, so the same
+simulated light curves) of an earlier run's star table, class by class: within 10 %,
+detected, converged, and the per-star CPU ratio (written to
+``results/population_compare.md``).
 """
 
 from __future__ import annotations
@@ -260,6 +266,53 @@ def summarise(work: Path, out: Path, figure: Path, header: list[str], *,
     return text
 
 
+def compare(work: Path, before: Path, after: Table, out: Path, header: list[str]) -> str:
+    """The stars of ``after`` that ``before`` also has, side by side, per class."""
+    old = Table.read(before, format="ascii.ecsv")
+    truth = _truth(work)
+    rows = []
+    for table in (old, after):
+        t = join(truth, table[list(STAR_COLUMNS)], keys="name", join_type="inner")
+        t = t[np.array([s == "ok" for s in t["status"]])]
+        rows.append({str(n): r for n, r in zip(t["name"], t, strict=True)})
+    names = sorted(set(rows[0]) & set(rows[1]))
+    lines = list(header) + [
+        f"- before: {before.name} (code commits "
+        f"{', '.join(sorted(set(np.asarray(old['commit']).tolist())))}); now: this run",
+        f"- stars in both: {len(names)}", "",
+        "| class | stars | within 10 % before / now | detected before / now | "
+        "converged before / now | median CPU before / now [s] | median per-star CPU ratio |",
+        "|---|---:|---|---|---|---|---:|"]
+    for cls in CLASSES:
+        sel = [n for n in names if rows[0][n]["category"] == cls]
+        if not sel:
+            continue
+        cells = [cls, str(len(sel))]
+        for key in ("within", "detected", "converged"):
+            pair = []
+            for side in rows:
+                if key == "within":
+                    if cls == "null":
+                        pair.append("-")
+                        continue
+                    v = [bool(_within([side[n]["period"]], side[n]["period_min"],
+                                      side[n]["period_max"])[0]) for n in sel]
+                else:
+                    v = [bool(side[n][key]) for n in sel]
+                pair.append(f"{sum(v)}/{len(v)}")
+            cells.append(" / ".join(pair))
+        cpu = [np.array([float(side[n]["cpu_time"]) for n in sel]) for side in rows]
+        cells.append(f"{np.median(cpu[0]):.0f} / {np.median(cpu[1]):.0f}")
+        cells.append(f"{np.median(cpu[1] / cpu[0]):.2f}")
+        lines.append("| " + " | ".join(cells) + " |")
+    lines += ["", "Within 10 % and detected: as in population.md (nulls: detected = false "
+              "alarms). CPU: the worker's CPU seconds per star; the ratio is now / before, "
+              "per star, then the median."]
+    text = "\n".join(lines) + "\n"
+    out.write_text(text)
+    return text
+
+
 def _figure(t: Table, hit: np.ndarray, path: Path) -> None:
     import matplotlib
 
@@ -302,6 +355,9 @@ def main(argv=None) -> int:
                          "with this run's stars added")
     ap.add_argument("--commit", default=None,
                     help="commit recorded for this run's stars (default: git rev-parse)")
+    ap.add_argument("--compare", default=None, metavar="STARS.ecsv",
+                    help="an earlier run's star table to set this run's stars beside "
+                         "(writes results/population_compare.md)")
     args = ap.parse_args(argv)
     work = Path(args.work)
     out = Path(args.out)
@@ -346,6 +402,10 @@ def main(argv=None) -> int:
     ]
     print(summarise(work, out, out.with_name("population_completeness.png"), header,
                     carried=carried, commit=commit, stars_out=carry, key=key))
+    if args.compare:
+        now = Table.read(carry, format="ascii.ecsv")
+        print(compare(work, Path(args.compare), now, out.with_name("population_compare.md"),
+                      header))
     return 0
 
 
