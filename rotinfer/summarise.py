@@ -99,8 +99,9 @@ class DetectionConfig:
     false_alarm_upper_95: float | None = 0.047
     calibration: str = (
         "calibrated: 1 of 100 simulated null stars called periodic at delta-BIC > 10 "
-        "(benchmarks/calibrate_detection.py, seed 1, 2026-12-02): 1 of 50 one-year 30-min "
-        "light curves, 0 of 24 sectors, 0 of 26 ground-based; BENCHMARKS.md section 3"
+        "(benchmarks/calibrate_detection.py, seed 1, 2026-12-02, mean integrated out, "
+        "background oscillators 'auto'): 1 of 50 one-year 30-min light curves, 0 of 24 "
+        "sectors, 0 of 26 ground-based; BENCHMARKS.md section 3"
     )
     harmonic_probability: float = 0.05
     harmonic_tolerance: float = 0.1
