@@ -28,8 +28,8 @@ with the same seed, stars per class and configuration skips those stars (``--car
 and adds its own, so the committed table grows towards the requested population even
 when each session's work folder is lost. "The same configuration" means the same file
 and the same resolved options (``rotinfer.config.config_hash`` of every stage's
-settings, defaults included), so a changed default or a new model option starts the
-table afresh.
+settings, defaults included, but not the false-alarm statement of ``[detection]``), so a
+changed default or a new model option starts the table afresh.
 
 Usage::
 
@@ -46,6 +46,7 @@ detected, converged, and the per-star CPU ratio (written to
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import datetime
 import os
 import platform
@@ -165,8 +166,13 @@ def _run_key(seed: int, per_class: int, config: str) -> dict:
     from rotinfer.pipeline import load_run_config
 
     digest = hashlib.sha256(Path(config).read_bytes()).hexdigest()[:16]
+    cfg = load_run_config(config)
+    # what shapes the fits and the calls; not the wording of the false-alarm statement
+    detection = dataclasses.replace(cfg.detection, false_alarm_rate=None,
+                                    false_alarm_upper_95=None, calibration="")
+    resolved = config_hash(dataclasses.replace(cfg, detection=detection))
     return {"seed": int(seed), "per_class": int(per_class), "config_sha256": digest,
-            "resolved_config": config_hash(load_run_config(config))}
+            "resolved_config": resolved}
 
 
 def load_carried(path: Path, key: dict) -> Table | None:

@@ -43,10 +43,11 @@ The light curve (relative flux, normalised to median 1 per segment by
   from the celerite factorisation of K by the matrix determinant lemma and the
   Sherman-Morrison formula (one extra right-hand side in the triangular solve).
   Sampled instead, the mean trades off against a slow background oscillator, and
-  that pair set the run length: on a simulated sector with drifts the mean's
-  autocorrelation time was 61 steps against 15-25 for the rest, and integrating it
-  out cut the steps to convergence from 3,400 to 1,200-1,600 (BENCHMARKS.md,
-  section 6). Its conditional posterior given the other parameters is Gaussian
+  that pair set the run length: on a simulated sector with drifts, from the same mode,
+  the mean's autocorrelation time was 61-80 steps and the ensembles needed 3,400-4,600
+  steps; integrated out, 1,200-1,600 (800 and 600 on a star without drifts;
+  ``benchmarks/bench_mean.py``, BENCHMARKS.md section 6). Its conditional posterior
+  given the other parameters is Gaussian
   (:meth:`RotationModel.mean_posterior`) and is used for predictions.
 
 Parameters are sampled in an unconstrained space (logs and logits); every
