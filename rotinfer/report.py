@@ -152,6 +152,18 @@ def _flag_sentences(summary: Mapping[str, Any]) -> list[str]:
             "Two spot groups on opposite hemispheres make two dips per rotation; a repeating "
             "pattern is also periodic at twice its period. Check the folded light curve."
         )
+    sampling = summary.get("sampling") or {}
+    if sampling.get("flag"):
+        at = max(sampling.get("periodicities") or [{}], key=lambda q: q.get("probability", 0))
+        out.append(
+            "Sampling warning: the posterior puts "
+            f"{_fmt(sampling.get('probability'))} of its probability within "
+            f"{100 * sampling.get('tolerance', 0):.0f} % of a periodicity of the sampling "
+            f"itself ({_fmt(at.get('period'))} d, spectral-window power "
+            f"{_fmt(at.get('power'))}). A period there may come from when the star was "
+            "observed (nightly or orbital systematics, aliasing), not from the star; check "
+            "comparison stars observed with the same schedule."
+        )
     agree = lookup(summary, "baselines.agreement")
     if agree is False:
         out.append(
@@ -266,9 +278,10 @@ def write_star_page(folder: str | os.PathLike[str]) -> Path:
                      f"{html.escape(str(s.get('error', '')))}</p>")
     parts.append("<h2>Result</h2>")
     parts.append(_table(
-        ["detected", "converged", "harmonic warning", "wall time"],
+        ["detected", "converged", "harmonic warning", "sampling warning", "wall time"],
         [[_yesno(s.get("detected")), _yesno(s.get("converged")),
           _yesno(lookup(s, "harmonic.flag"), good_when=False),
+          _yesno(lookup(s, "sampling.flag"), good_when=False),
           f"{_fmt(s.get('seconds'), 3)} s"]],
     ))
     parts.append(_table(["quantity", "median", "68 % interval", "95 % interval"],
@@ -390,7 +403,7 @@ def write_vetting_page(results: str | os.PathLike[str], *, star_pages: bool = Tr
     if not folders:
         raise InputError(str(results), f"no star folders with a {SUMMARY_NAME} inside")
     headers = ["star", "thumbnail", "period [d]", "68 % interval [d]", "95 % interval [d]",
-               "amplitude [ppt]", "detected", "harmonic warning", "converged",
+               "amplitude [ppt]", "detected", "harmonic warning", "sampling warning", "converged",
                "Lomb-Scargle [d]", "ACF [d]", "status"]
     rows = []
     for folder in folders:
@@ -413,6 +426,7 @@ def write_vetting_page(results: str | os.PathLike[str], *, star_pages: bool = Tr
             _cell(lookup(s, "amplitude_ppt.median")),
             _cell(s.get("detected"), _yesno(s.get("detected"))),
             _cell(lookup(s, "harmonic.flag"), _yesno(lookup(s, "harmonic.flag"), False)),
+            _cell(lookup(s, "sampling.flag"), _yesno(lookup(s, "sampling.flag"), False)),
             _cell(s.get("converged"), _yesno(s.get("converged"))),
             _cell(lookup(s, "baselines.lomb_scargle.period")),
             _cell(lookup(s, "baselines.acf.period")),
@@ -423,7 +437,8 @@ def write_vetting_page(results: str | os.PathLike[str], *, star_pages: bool = Tr
         "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>"
         f"<title>rotinfer: vetting {html.escape(results.name)}</title><style>{_STYLE}</style>"
         f"</head><body><h1>Vetting: {html.escape(results.name)} ({len(rows)} stars)</h1>"
-        "<p>Click a column header to sort. Check the harmonic and convergence columns first; "
+        "<p>Click a column header to sort. Check the harmonic, sampling and convergence "
+        "columns first; "
         "open a star to see its light curve, periodograms and posterior.</p>"
         f"<table class='sortable' id='stars'><thead><tr>{head}</tr></thead><tbody>"
         + "\n".join(rows) + f"</tbody></table><script>{_SORT_SCRIPT}</script></body></html>"

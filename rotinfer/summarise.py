@@ -10,6 +10,10 @@ Conventions
   Freedman-Diaconis-width bins (Hyndman 1996); returned as a list of
   [lo, hi] day intervals, several when the posterior is multimodal.
 * MAP: the highest posterior point found by the optimiser or the sampler.
+* Sampling check: the posterior probability of periods within
+  ``[detection] sampling_tolerance`` of a periodicity of the sampling (a peak of
+  the spectral window found by the periodogram stage; the day, for ground-based
+  data), where a period may be an artefact of when the star was observed.
 * Amplitude: the standard deviation of the rotation signal (the GP rotation
   term), in ppt; coherence time: the damping time of the mode at P, in days and
   in rotations.
@@ -17,6 +21,7 @@ Conventions
 References
 ----------
 Hyndman, R. J. 1996, The American Statistician 50, 120 (highest-density regions).
+Deeming, T. J. 1975, Ap&SS 36, 137 (spectral window and aliases).
 Kass, R. E. & Raftery, A. E. 1995, JASA 90, 773 (Bayes factors; BIC as an approximation).
 Schwarz, G. 1978, Ann. Stat. 6, 461 (BIC).
 """
@@ -40,6 +45,7 @@ __all__ = [
     "detection_statistics",
     "false_alarm_text",
     "harmonic_check",
+    "sampling_check",
     "hdr_intervals",
     "summarise",
     "weighted_quantile",
@@ -91,6 +97,12 @@ class DetectionConfig:
     agreement_tolerance : float
         A baseline period agrees with the posterior when it lies in the 95 %
         interval widened by this fraction.
+    sampling_tolerance : float
+        A period is "at" a periodicity of the sampling (a spectral-window peak
+        reported by the periodogram stage) when within this fraction of it.
+    sampling_probability : float
+        The sampling warning is raised when the posterior probability of periods
+        at such a periodicity exceeds this.
     """
 
     statistic: Literal["delta_bic", "laplace"] = "delta_bic"
@@ -106,6 +118,8 @@ class DetectionConfig:
     harmonic_probability: float = 0.05
     harmonic_tolerance: float = 0.1
     agreement_tolerance: float = 0.1
+    sampling_tolerance: float = 0.05
+    sampling_probability: float = 0.05
 
     def __post_init__(self):
         if self.statistic not in ("delta_bic", "laplace"):
@@ -115,7 +129,8 @@ class DetectionConfig:
             )
         if not math.isfinite(self.threshold):
             raise ConfigError(f"[detection] threshold: must be finite, got {self.threshold}")
-        for name in ("harmonic_probability", "harmonic_tolerance", "agreement_tolerance"):
+        for name in ("harmonic_probability", "harmonic_tolerance", "agreement_tolerance",
+                     "sampling_tolerance", "sampling_probability"):
             v = getattr(self, name)
             if not 0 < v < 1:
                 raise ConfigError(f"[detection] {name}: must be in (0, 1), got {v}")
@@ -240,6 +255,71 @@ def harmonic_check(posterior: Posterior, reference: float, config: DetectionConf
     }
 
 
+# --------------------------------------------------------------- sampling check
+def sampling_check(period, weights, median: float, scan: dict | None,
+                   config: DetectionConfig) -> dict:
+    """Is the period at, or an alias under, a periodicity of the sampling?
+
+    Parameters
+    ----------
+    period, weights : ndarray
+        Posterior period draws (days) and their weights (summing to one).
+    median : float
+        The reported period (days).
+    scan : dict or None
+        ``ScanResult.to_dict()``: its ``window`` peaks (periods in days, window power)
+        and the searched range; None gives an empty block.
+    config : DetectionConfig
+
+    Returns
+    -------
+    dict
+        ``periodicities`` (each window peak with the posterior ``probability`` of periods
+        within ``tolerance`` of it), ``probability`` (of any of them), ``flag``
+        (``probability > config.sampling_probability``), ``baselines`` (whether the
+        Lomb–Scargle and ACF periods sit at one), and ``aliases``: the periods
+        ``1 / |1/median +- f_w|`` inside the searched range, where the reported signal
+        would also show through the window (Deeming 1975), for comparing with other
+        periodogram peaks.
+    """
+    if not scan:
+        return {}
+    tol = math.log1p(config.sampling_tolerance)
+    period = np.asarray(period, dtype=float)
+    w = np.asarray(weights, dtype=float)
+    peaks = [p for p in (scan.get("window") or []) if p.get("period")]
+    lo, hi = scan.get("min_period"), scan.get("max_period")
+
+    def near(p):
+        return any(abs(math.log(p / q["period"])) < tol for q in peaks)
+
+    any_near = np.zeros(period.size, dtype=bool)
+    rows = []
+    aliases = []
+    for q in peaks:
+        inside = np.abs(np.log(period / q["period"])) < tol
+        any_near |= inside
+        rows.append({**q, "probability": float(np.sum(w[inside]))})
+        for f in (1.0 / median + q["frequency"], abs(1.0 / median - q["frequency"])):
+            if f > 0 and lo is not None and hi is not None and lo <= 1.0 / f <= hi:
+                aliases.append({"period": 1.0 / f, "window_period": q["period"]})
+    probability = float(np.sum(w[any_near]))
+    baselines = {}
+    for key in ("lomb_scargle", "acf"):
+        p = (scan.get(key) or {}).get("period")
+        baselines[key] = (bool(near(p)) if p is not None and np.isfinite(p) and p > 0
+                          else None)
+    return {
+        "periodicities": rows,
+        "probability": probability,
+        "flag": bool(probability > config.sampling_probability),
+        "threshold": config.sampling_probability,
+        "tolerance": config.sampling_tolerance,
+        "baselines": baselines,
+        "aliases": sorted(aliases, key=lambda a: a["period"]),
+    }
+
+
 # --------------------------------------------------------------------- detection
 def detection_statistics(model, modes, aperiodic) -> tuple[float, float]:
     """The two detection statistics from the optimisation results alone.
@@ -350,6 +430,8 @@ class StarSummary:
         sampled probability, basin.
     harmonic : dict
         See :func:`harmonic_check`.
+    sampling : dict
+        See :func:`sampling_check` (empty without the periodogram stage).
     detection : dict
         See :func:`detection`.
     detected, converged : bool
@@ -376,6 +458,7 @@ class StarSummary:
     diagnostics: dict
     nuisance: dict
     baselines: dict = field(default_factory=dict)
+    sampling: dict = field(default_factory=dict)
     extra: dict = field(default_factory=dict)
 
     def to_dict(self) -> dict:
@@ -390,6 +473,7 @@ class StarSummary:
             "converged": self.converged,
             "modes": self.modes,
             "harmonic": self.harmonic,
+            "sampling": self.sampling,
             "detection": self.detection,
             "diagnostics": self.diagnostics,
             "nuisance": self.nuisance,
@@ -435,7 +519,8 @@ def summarise(
     identifier : str
     config : DetectionConfig, optional
     scan : dict, optional
-        ``ScanResult.to_dict()`` of the periodogram stage (baselines).
+        ``ScanResult.to_dict()`` of the periodogram stage (baselines and the
+        sampling check).
     """
     config = config or DetectionConfig()
     phys = posterior.physical()
@@ -502,4 +587,5 @@ def summarise(
         harmonic=harmonic_check(posterior, reference, config), detection=det,
         detected=det["detected"], converged=posterior.converged, diagnostics=diagnostics,
         nuisance=nuisance, baselines=_baselines(scan, period, config),
+        sampling=sampling_check(phys["period"], w, period["median"], scan, config),
     )

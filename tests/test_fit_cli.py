@@ -87,6 +87,8 @@ def test_cli_fit_end_to_end_reproducible_and_resumable(tmp_path, star_file, caps
     assert isinstance(summary["detected"], bool) and isinstance(summary["converged"], bool)
     assert summary["baselines"]["lomb_scargle"]["period"] > 0
     assert "period" in summary["baselines"]["acf"]
+    # continuous space photometry: no periodicity of the sampling in range, no warning
+    assert summary["sampling"]["periodicities"] == [] and summary["sampling"]["flag"] is False
     assert summary["seconds"] > 0 and summary["seed"] == 3
     assert summary["input"]["checksums"][str(path)] == file_checksum(path)
     assert summary["config"]["sampler"]["max_steps"] == 100

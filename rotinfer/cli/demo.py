@@ -23,6 +23,7 @@ def headline(result) -> list[str]:
     ls = ((s.get("baselines") or {}).get("lomb_scargle") or {}).get("period")
     acf = ((s.get("baselines") or {}).get("acf") or {}).get("period")
     harmonic = (s.get("harmonic") or {}).get("flag")
+    sampling = (s.get("sampling") or {}).get("flag")
     lines = [
         f"rotinfer demo: {truth.name}, an invented star (imaginary Larkspur survey; "
         f"simulated spotted star, period {truth.period_eq:g} d)",
@@ -40,6 +41,7 @@ def headline(result) -> list[str]:
         f"  detected:     {_yes(s.get('detected'))}{_false_alarm(s)}",
         f"  converged:    {_yes(s.get('converged'))}",
         f"  harmonic warning: {_yes(harmonic)}",
+        f"  sampling warning: {_yes(sampling)}",
         f"  took {result.seconds:.0f} s",
     ]
     return lines

@@ -86,6 +86,8 @@ def fit(settings, files, out_dir, config_path, seed, **opts):
         ]
         if summary.harmonic["flag"]:
             flags.append("HARMONIC WARNING")
+        if summary.sampling.get("flag"):
+            flags.append("SAMPLING WARNING")
         settings.echo(
             f"{lc.meta.identifier}: P = {p['median']:.4g} d "
             f"(68 %: {p['interval_68'][0]:.4g}-{p['interval_68'][1]:.4g} d), "

@@ -8,7 +8,8 @@ Two baselines every rotation paper reports beside a Bayesian result:
 
 Their strongest peaks, with halves and doubles, form a :class:`CandidateSet` that starts the
 Gaussian-process fit. The gradient-of-the-power-spectrum method (Shapiro et al. 2020) is not
-implemented.
+implemented. Beside them, the spectral window (:mod:`.window`) lists the periodicities of
+the sampling itself (the day, for ground-based data), at which a period may be an artefact.
 """
 
 from .acf import ACFPeak, ACFResult, autocorrelation, masked_autocorrelation
@@ -22,6 +23,7 @@ from .lombscargle import (
     frequency_grid,
     lomb_scargle,
 )
+from .window import WindowPeak, spectral_window, spectral_window_grid, window_peaks
 
 __all__ = [
     "ACFPeak",
@@ -32,6 +34,7 @@ __all__ = [
     "PeriodCandidate",
     "PeriodogramConfig",
     "ScanResult",
+    "WindowPeak",
     "autocorrelation",
     "available_methods",
     "build_candidates",
@@ -40,4 +43,7 @@ __all__ = [
     "lomb_scargle",
     "masked_autocorrelation",
     "scan",
+    "spectral_window",
+    "spectral_window_grid",
+    "window_peaks",
 ]

@@ -77,6 +77,13 @@ class PeriodogramConfig:
         Candidates whose periods differ by less than this fraction are merged.
     max_candidates : int
         Most candidates kept (highest scores first).
+    window_threshold : float
+        Peaks of the sampling's spectral window (:mod:`rotinfer.periodogram.window`) at
+        least this strong within the searched range are reported as periodicities of the
+        sampling (0.2: above the 0.047 sidelobes of a contiguous block, below the 0.5-0.7
+        of nightly sampling).
+    window_max_peaks : int
+        Most such periodicities reported (strongest first).
     """
 
     oversampling: float = 5.0
@@ -98,6 +105,8 @@ class PeriodogramConfig:
     harmonic_weight: float = 0.5
     dedup_tolerance: float = 0.05
     max_candidates: int = 10
+    window_threshold: float = 0.2
+    window_max_peaks: int = 5
 
     def __post_init__(self):
         allowed = ("auto", "fast", "cython", "slow")
@@ -129,6 +138,8 @@ class PeriodogramConfig:
             "harmonic_weight": (self.harmonic_weight, 0.0, 1.0),
             "dedup_tolerance": (self.dedup_tolerance, 0.0, 0.3),
             "max_candidates": (self.max_candidates, 1, math.inf),
+            "window_threshold": (self.window_threshold, 0.0, 1.0),
+            "window_max_peaks": (self.window_max_peaks, 1, math.inf),
         }
         for name, (value, lo, hi) in checks.items():
             if not (isinstance(value, int | float) and lo <= value <= hi):

@@ -13,6 +13,7 @@ from .acf import ACFResult, autocorrelation
 from .candidates import CandidateSet, build_candidates
 from .config import PeriodogramConfig
 from .lombscargle import LombScargleResult, lomb_scargle
+from .window import WindowPeak, window_peaks
 
 __all__ = ["ScanResult", "available_methods", "scan"]
 
@@ -76,6 +77,9 @@ class ScanResult:
         Period range searched, in days (the minimum raised to the cadence limit if needed).
     notes : tuple of str
         Human-readable notes (e.g. the range adjusted to the cadence).
+    window : tuple of WindowPeak
+        Periodicities of the sampling itself within the searched range (spectral-window
+        peaks of at least ``[periodogram] window_threshold``; strongest first).
     """
 
     lomb_scargle: LombScargleResult | None
@@ -85,6 +89,7 @@ class ScanResult:
     min_period: float = float("nan")
     max_period: float = float("nan")
     notes: tuple[str, ...] = ()
+    window: tuple[WindowPeak, ...] = ()
 
     def to_dict(self) -> dict:
         """JSON-ready dictionary without the big arrays; periods and lags in days."""
@@ -95,6 +100,7 @@ class ScanResult:
             "lomb_scargle": None if self.lomb_scargle is None else self.lomb_scargle.to_dict(),
             "acf": None if self.acf is None else self.acf.to_dict(),
             "candidates": [c.to_dict() for c in self.candidates.candidates],
+            "window": [p.to_dict() for p in self.window],
             "notes": list(self.notes),
         }
 
@@ -136,7 +142,9 @@ def scan(
     limit cannot be told from their aliases. The candidate set takes the
     ``candidates_per_method`` strongest Lomb–Scargle peaks and the autocorrelation period
     (when reliable), each with its half and double, scored as :class:`PeriodCandidate`
-    describes.
+    describes. ``window`` lists the sampling's own periodicities
+    (:func:`~rotinfer.periodogram.window.window_peaks`), against which the summary
+    checks the posterior period.
 
     References
     ----------
@@ -169,10 +177,15 @@ def scan(
         harmonic_weight=config.harmonic_weight, tolerance=config.dedup_tolerance,
         max_candidates=config.max_candidates,
     )
+    window = window_peaks(
+        search.time, min_period=search.min_period, max_period=search.max_period,
+        threshold=config.window_threshold, oversampling=config.oversampling,
+        max_frequencies=config.max_frequencies, max_peaks=config.window_max_peaks,
+    )
     return ScanResult(
         lomb_scargle=ls, acf=acf, candidates=candidates,
         identifier=prepared.lc.meta.identifier, min_period=search.min_period,
-        max_period=search.max_period, notes=tuple(notes),
+        max_period=search.max_period, notes=tuple(notes), window=window,
     )
 
 

@@ -257,15 +257,10 @@ def lomb_scargle(
 
     df = frequency[1] - frequency[0]
     f_lo, f_hi = frequency[0], frequency[-1]
-    refined = []
-    for i in idx:
-        zoom = np.linspace(max(frequency[i] - df, f_lo), min(frequency[i] + df, f_hi), _ZOOM_POINTS)
-        zp = np.asarray(ls.power(zoom, method="cython"), dtype=float)
-        f_peak, _ = _parabola_vertex(zoom, zp)
-        p_peak = float(ls.power(np.array([f_peak]), method="cython")[0])
-        if p_peak < zp.max():  # the parabola overshot: keep the best sampled point
-            f_peak, p_peak = float(zoom[np.argmax(zp)]), float(zp.max())
-        refined.append((f_peak, p_peak))
+    def exact(f):
+        return np.asarray(ls.power(np.asarray(f, dtype=float), method="cython"), dtype=float)
+
+    refined = [refine_peak(exact, frequency[i], df, f_lo, f_hi) for i in idx]
     refined.sort(key=lambda fp: -fp[1])
     peaks = []
     if refined:
@@ -290,6 +285,20 @@ def lomb_scargle(
         max_period=float(max_period), oversampling=oversampling,
         implementation=method if kwds is None else f"{method} ({config.ls_fast_algorithm})",
     )
+
+
+def refine_peak(exact, f0: float, df: float, f_lo: float, f_hi: float) -> tuple[float, float]:
+    """Refine a grid peak at ``f0``: ``exact`` (a function of a frequency array, 1/day) on
+    9 points spanning one grid step ``df`` either side (clipped to ``[f_lo, f_hi]``), then
+    the vertex of a parabola through the three highest; the best sampled point instead
+    when the parabola overshoots. Returns ``(frequency, value)``."""
+    zoom = np.linspace(max(f0 - df, f_lo), min(f0 + df, f_hi), _ZOOM_POINTS)
+    zp = exact(zoom)
+    f_peak, _ = _parabola_vertex(zoom, zp)
+    p_peak = float(exact(np.array([f_peak]))[0])
+    if p_peak < zp.max():  # the parabola overshot: keep the best sampled point
+        f_peak, p_peak = float(zoom[np.argmax(zp)]), float(zp.max())
+    return float(f_peak), p_peak
 
 
 def _parabola_vertex(x: np.ndarray, y: np.ndarray) -> tuple[float, float]:
