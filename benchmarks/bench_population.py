@@ -156,21 +156,33 @@ def _git_commit() -> str:
         return "unknown"
 
 
+#: Options that change what a summary says but not the fit or the table (not in the key).
+REPORT_ONLY = (("periodogram", "window_threshold"), ("periodogram", "window_max_peaks"),
+               ("detection", "sampling_tolerance"), ("detection", "sampling_probability"))
+
+
 def _run_key(seed: int, per_class: int, config: str) -> dict:
     """What must match for stars of an earlier run to be carried into this one: the seed,
     the stars per class, the configuration file and its resolved options (defaults
     included)."""
     import hashlib
+    import json
 
-    from rotinfer.config import config_hash
+    from rotinfer.config import dataclass_to_dict
     from rotinfer.pipeline import load_run_config
 
     digest = hashlib.sha256(Path(config).read_bytes()).hexdigest()[:16]
     cfg = load_run_config(config)
-    # what shapes the fits and the calls; not the wording of the false-alarm statement
+    # what shapes the fits and the calls; not the wording of the false-alarm statement ...
     detection = dataclasses.replace(cfg.detection, false_alarm_rate=None,
                                     false_alarm_upper_95=None, calibration="")
-    resolved = config_hash(dataclasses.replace(cfg, detection=detection))
+    options = dataclass_to_dict(dataclasses.replace(cfg, detection=detection))
+    # ... nor the options of the sampling check, which only adds a flag to the summary
+    # (dropped, not blanked, so that stars fitted before the check existed still match)
+    for table, key in REPORT_ONLY:
+        options[table].pop(key, None)
+    text = json.dumps(options, sort_keys=True, default=str)
+    resolved = hashlib.sha256(text.encode()).hexdigest()[:16]
     return {"seed": int(seed), "per_class": int(per_class), "config_sha256": digest,
             "resolved_config": resolved}
 
