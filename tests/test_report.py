@@ -23,7 +23,8 @@ from rotinfer.report import find_star_folders, lookup, write_star_page, write_ve
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 
 
-def _summary(identifier, period, detected=True, converged=True, harmonic=False):
+def _summary(identifier, period, detected=True, converged=True, harmonic=False,
+             sampling=False):
     return {
         "identifier": identifier,
         "period": {"median": period, "interval_68": [period * 0.97, period * 1.03],
@@ -35,6 +36,10 @@ def _summary(identifier, period, detected=True, converged=True, harmonic=False):
         "converged": converged,
         "harmonic": {"flag": harmonic, "probability_half": 0.2 if harmonic else 0.0,
                      "probability_double": 0.0},
+        "sampling": {"flag": sampling, "probability": 0.8 if sampling else 0.0,
+                     "tolerance": 0.05,
+                     "periodicities": [{"period": 0.9973, "power": 0.66,
+                                        "probability": 0.8 if sampling else 0.0}]},
         "baselines": {"lomb_scargle": {"period": period / 2, "power": 0.4,
                                        "false_alarm_probability": 1e-30},
                       "acf": {"period": period, "local_peak_height": 0.5, "uncertainty": 0.1}},
@@ -64,6 +69,12 @@ def _star_folder(root, name, period, **kw):
     return folder
 
 
+def test_star_page_explains_the_sampling_warning(tmp_path):
+    folder = _star_folder(tmp_path, "Kestrel-8", 0.9975, sampling=True)
+    page = write_star_page(folder).read_text()
+    assert "Sampling warning" in page and "0.9973 d" in page and "0.8 of its probability" in page
+
+
 def test_lookup_dotted_paths():
     d = {"a": {"b": {"c": 3}}}
     assert lookup(d, "a.b.c") == 3
@@ -76,6 +87,7 @@ def test_star_page_is_self_contained_and_explains_flags(tmp_path):
     # Units beside every period and amplitude; flags in words.
     assert "11.3 d" in page and "4.2 ppt" in page
     assert "NOT CONVERGED" in page and "Harmonic warning" in page
+    assert "Sampling warning" not in page
     assert "R-hat 1.2 &gt; 1.01" in page and "split R-hat across ensembles" in page
     # Self-contained: the figure is embedded, and nothing is loaded from the network.
     assert "data:image/png;base64," in page
