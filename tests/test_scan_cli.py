@@ -127,3 +127,26 @@ def test_noise_star_reports_no_acf_period(tmp_path, capsys):
     rec = json.loads(capsys.readouterr().out)[0]
     assert rec["acf"]["period"] is None and rec["acf"]["reliable"] is False
     assert rec["lomb_scargle"]["false_alarm_probability"] > 0.01
+
+
+def test_text_output_names_the_nightly_periodicity(tmp_path, capsys):
+    # Invented ground-based star: 8 hours a night for 100 nights (4,800 points, not
+    # binned). The sampling's own periodicity, one day, has window power sinc^2(8/24) =
+    # 0.68 (Deeming 1975).
+    rng = np.random.default_rng(5)
+    t = np.arange(0.0, 100.0, 10.0 / 1440.0)
+    t = t[(t % 1.0) < 8.0 / 24.0]
+    err = np.full(t.size, 1e-3)
+    flux = 1 + 0.004 * np.sin(2 * np.pi * t / 4.4) + err * rng.standard_normal(t.size)
+    path = tmp_path / "demo-ground.csv"
+    write_light_curve(from_arrays(t, flux, err, identifier="demo-ground"), path)
+    assert main(["scan", str(path), "--min-period", "0.4"]) == 0
+    out = capsys.readouterr().out
+    found = re.search(r"periodicities of the sampling itself: ([0-9.]+) d \(window power "
+                      r"([0-9.]+)\)", out)
+    assert found, out
+    assert float(found.group(1)) == pytest.approx(1.0, abs=2e-3)
+    assert float(found.group(2)) == pytest.approx(np.sinc(8 / 24) ** 2, abs=0.02)
+    assert main(["scan", str(path), "--min-period", "0.4", "--json"]) == 0
+    record = json.loads(capsys.readouterr().out)[0]
+    assert record["window"][0]["period"] == pytest.approx(1.0, abs=2e-3)

@@ -28,7 +28,8 @@ log = logging.getLogger("rotinfer")
 # Units of the numbers in the JSON output (also written into it).
 JSON_UNITS = {"period": "d", "uncertainty": "d", "lag": "d", "frequency": "1/d",
               "cadence": "d", "baseline": "d", "bin_width": "d", "smoothing": "d",
-              "power": "normalised (fraction of variance)", "local_peak_height": "dimensionless"}
+              "power": "normalised (fraction of variance)", "local_peak_height": "dimensionless",
+              "window.power": "spectral-window power |sum exp(2 pi i f t)|^2 / N^2, in [0, 1]"}
 
 
 @cli.command()
@@ -157,6 +158,10 @@ def _text(prep, result) -> list[str]:
     cands = ", ".join(f"{c.period:.4g} d ({c.method} {c.relation}, score {c.score:.2f})"
                       for c in result.candidates.candidates[:5])
     lines.append(f"  candidates: {cands or 'none'}")
+    if result.window:
+        at = ", ".join(f"{w.period:.4g} d (window power {w.power:.2f})" for w in result.window)
+        lines.append(f"  periodicities of the sampling itself: {at}; periods there are "
+                     "suspect")
     return lines
 
 
