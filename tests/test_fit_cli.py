@@ -193,3 +193,27 @@ def test_sun_as_a_star_converged(tmp_path, start, end, phase):
     assert s.converged, s.diagnostics
     lo, hi = s.period["interval_95"]
     assert WIDE[0] <= lo and hi <= WIDE[1], (phase, s.period)
+
+
+def test_harmonic_warning_names_the_alternative_modes():
+    from types import SimpleNamespace
+
+    from rotinfer.cli.fit import _alternatives
+
+    modes = [
+        {"period": 7.007, "relation": "P", "sampled": True, "probability": 0.511,
+         "laplace_probability": 0.503},
+        {"period": 3.543, "relation": "P/2", "sampled": True, "probability": 0.489,
+         "laplace_probability": 0.497},
+        {"period": 14.1, "relation": "2P", "sampled": False, "probability": None,
+         "laplace_probability": 0.08},
+        {"period": 2.232, "relation": "P/3", "sampled": False, "probability": None,
+         "laplace_probability": 0.2},
+        {"period": 1.74, "relation": "other", "sampled": False, "probability": None,
+         "laplace_probability": 1e-9},
+    ]
+    summary = SimpleNamespace(harmonic={"threshold": 0.05}, modes=modes)
+    assert _alternatives(summary) == (" (P/2 = 3.543 d: probability 0.49; 2P = 14.1 d: "
+                                      "probability 0.08 (Laplace, not sampled))")
+    summary.modes = modes[:1]
+    assert _alternatives(summary) == ""

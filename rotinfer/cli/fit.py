@@ -85,7 +85,7 @@ def fit(settings, files, out_dir, config_path, seed, **opts):
             "converged" if summary.converged else "NOT CONVERGED",
         ]
         if summary.harmonic["flag"]:
-            flags.append("HARMONIC WARNING")
+            flags.append("HARMONIC WARNING" + _alternatives(summary))
         if summary.sampling.get("flag"):
             flags.append("SAMPLING WARNING")
         settings.echo(
@@ -105,3 +105,17 @@ def fit(settings, files, out_dir, config_path, seed, **opts):
         from ..report import write_vetting_page
 
         write_vetting_page(out, star_pages=False)
+
+
+def _alternatives(summary) -> str:
+    """' (P/2 = 3.54 d: probability 0.49)' for the harmonic modes behind the warning."""
+    limit = summary.harmonic["threshold"]
+    parts = []
+    for m in summary.modes:
+        if m["relation"] not in ("P/2", "2P"):
+            continue
+        p = m["probability"] if m["sampled"] else m["laplace_probability"]
+        if p is not None and p > limit:
+            parts.append(f"{m['relation']} = {m['period']:.4g} d: probability {p:.2f}"
+                         + ("" if m["sampled"] else " (Laplace, not sampled)"))
+    return f" ({'; '.join(parts)})" if parts else ""
