@@ -13,9 +13,10 @@ The classical spectral window (Deeming 1975; Roberts, Lehár & Dreher 1987) is
 
 the periodogram of the sampling alone: ``W(0) = 1``, and ``W(f) = 1`` at any frequency
 with which every time repeats exactly (the sampling frequency of even sampling). A
-contiguous block of length ``T`` has sidelobes ``sinc^2`` below 0.047 beyond ``1/T``;
-sampling gated for a fraction ``d`` of each cycle of frequency ``f_g`` has
-``W(f_g) = sinc^2(pi d)`` (e.g. 0.68 for 8 hours a night).
+contiguous block of length ``T`` has ``W = (sin(pi f T) / (pi f T))^2``, whose sidelobes
+stay below 0.047 beyond ``f = 1/T``; dense sampling switched on for a fraction ``d`` of
+each cycle of frequency ``f_g`` has ``W(f_g) = (sin(pi d) / (pi d))^2`` (0.68 for 8 hours
+a night).
 
 :func:`window_peaks` evaluates ``W`` on the Lomb–Scargle stage's uniform frequency grid
 with astropy's fast trigonometric sums (Press & Rybicki 1989 extirpolation) and refines
