@@ -158,7 +158,8 @@ def _git_commit() -> str:
 
 #: Options that change what a summary says but not the fit or the table (not in the key).
 REPORT_ONLY = (("periodogram", "window_threshold"), ("periodogram", "window_max_peaks"),
-               ("detection", "sampling_tolerance"), ("detection", "sampling_probability"))
+               ("periodogram", "window_min_gap"), ("detection", "sampling_tolerance"),
+               ("detection", "sampling_probability"))
 
 
 def _run_key(seed: int, per_class: int, config: str) -> dict:

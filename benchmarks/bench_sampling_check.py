@@ -79,6 +79,8 @@ def main(argv=None) -> int:
             within=signal and _within(median, lo, hi), detected=bool(summary["detected"]),
             n_window=len(block["periodicities"]),
             window=", ".join(f"{q['period']:.4f} ({q['power']:.2f})"
+                             if q.get("source", "window") == "window" else
+                             f"{q['period']:.3f} (gaps)"
                              for q in block["periodicities"]) or "–",
             probability=block["probability"], flag=block["flag"], truth_at=truth_at,
             ls_at=block["baselines"]["lomb_scargle"], acf_at=block["baselines"]["acf"]))

@@ -155,14 +155,15 @@ def _flag_sentences(summary: Mapping[str, Any]) -> list[str]:
     sampling = summary.get("sampling") or {}
     if sampling.get("flag"):
         at = max(sampling.get("periodicities") or [{}], key=lambda q: q.get("probability", 0))
+        what = ("the spacing of its recurring gaps" if at.get("source") == "gaps" else
+                f"spectral-window power {_fmt(at.get('power'))}")
         out.append(
             "Sampling warning: the posterior puts "
             f"{_fmt(sampling.get('probability'))} of its probability within "
             f"{100 * sampling.get('tolerance', 0):.0f} % of a periodicity of the sampling "
-            f"itself ({_fmt(at.get('period'))} d, spectral-window power "
-            f"{_fmt(at.get('power'))}). A period there may come from when the star was "
-            "observed (nightly or orbital systematics, aliasing), not from the star; check "
-            "comparison stars observed with the same schedule."
+            f"itself ({_fmt(at.get('period'))} d, {what}). A period there may come from when "
+            "the star was observed (nightly or orbital systematics, aliasing), not from the "
+            "star; check comparison stars observed with the same schedule."
         )
     agree = lookup(summary, "baselines.agreement")
     if agree is False:

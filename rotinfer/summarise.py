@@ -274,13 +274,14 @@ def sampling_check(period, weights, median: float, scan: dict | None,
     Returns
     -------
     dict
-        ``periodicities`` (each window peak with the posterior ``probability`` of periods
+        ``periodicities`` (each periodicity of the sampling — a window peak or the spacing
+        of recurring gaps, see ``source`` — with the posterior ``probability`` of periods
         within ``tolerance`` of it), ``probability`` (of any of them), ``flag``
         (``probability > config.sampling_probability``), ``baselines`` (whether the
         Lomb–Scargle and ACF periods sit at one), and ``aliases``: the periods
-        ``1 / |1/median +- f_w|`` inside the searched range, where the reported signal
-        would also show through the window (Deeming 1975), for comparing with other
-        periodogram peaks.
+        ``1 / |1/median +- f_w|`` inside the searched range for each window peak ``f_w``,
+        where the reported signal would also show through the window (Deeming 1975), for
+        comparing with other periodogram peaks.
     """
     if not scan:
         return {}
@@ -300,6 +301,8 @@ def sampling_check(period, weights, median: float, scan: dict | None,
         inside = np.abs(np.log(period / q["period"])) < tol
         any_near |= inside
         rows.append({**q, "probability": float(np.sum(w[inside]))})
+        if q.get("source", "window") != "window":
+            continue  # aliases need a strong window peak; recurring gaps are not one
         for f in (1.0 / median + q["frequency"], abs(1.0 / median - q["frequency"])):
             if f > 0 and lo is not None and hi is not None and lo <= 1.0 / f <= hi:
                 aliases.append({"period": 1.0 / f, "window_period": q["period"]})

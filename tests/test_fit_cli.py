@@ -87,8 +87,11 @@ def test_cli_fit_end_to_end_reproducible_and_resumable(tmp_path, star_file, caps
     assert isinstance(summary["detected"], bool) and isinstance(summary["converged"], bool)
     assert summary["baselines"]["lomb_scargle"]["period"] > 0
     assert "period" in summary["baselines"]["acf"]
-    # continuous space photometry: no periodicity of the sampling in range, no warning
-    assert summary["sampling"]["periodicities"] == [] and summary["sampling"]["flag"] is False
+    # 20 d of space photometry with a downlink gap every 10 d: the gaps' 10-d spacing is
+    # the one periodicity of the sampling in range; P = 4.3 d is nowhere near it
+    (gaps,) = summary["sampling"]["periodicities"]
+    assert gaps["source"] == "gaps" and gaps["period"] == pytest.approx(10.0, abs=0.1)
+    assert gaps["probability"] == 0.0 and summary["sampling"]["flag"] is False
     assert summary["seconds"] > 0 and summary["seed"] == 3
     assert summary["input"]["checksums"][str(path)] == file_checksum(path)
     assert summary["config"]["sampler"]["max_steps"] == 100

@@ -10,6 +10,7 @@ import pytest
 from rotinfer import ConfigError
 from rotinfer.periodogram import (
     PeriodogramConfig,
+    gap_periodicity,
     scan,
     spectral_window,
     spectral_window_grid,
@@ -91,6 +92,31 @@ def test_continuous_space_sampling_has_no_strong_periodicity():
     assert window_peaks(t, min_period=0.1, max_period=13.7) == ()
 
 
+def test_recurring_downlink_gaps_are_a_periodicity_of_the_sampling():
+    # Two-orbit sector (27.4 d, a 1-d downlink gap mid-sector): marks at the start, the gap
+    # and the end, 13.7 d apart; a year in 30.44-d months with a 1-d gap each month.
+    sector = np.arange(0.0, 27.4, 2.0 / 1440.0)
+    sector = sector[np.abs(sector - 13.7) > 0.5]
+    found = gap_periodicity(sector, min_gap=0.5, min_period=0.1, max_period=13.7)
+    assert found.source == "gaps" and found.period == pytest.approx(13.7, abs=0.01)
+    assert found.power == pytest.approx(spectral_window(sector, [1 / found.period])[0])
+    year = np.arange(0.0, 365.25, 30.0 / 1440.0)
+    year = year[np.abs((year + 15.22) % 30.44 - 15.22) > 0.5]
+    assert gap_periodicity(year, min_gap=0.5, min_period=0.4,
+                           max_period=182.6).period == pytest.approx(30.44, abs=0.05)
+    # outside the searched range: nothing
+    assert gap_periodicity(year, min_gap=0.5, min_period=0.4, max_period=20.0) is None
+
+
+def test_irregular_or_absent_gaps_are_no_periodicity(rng):
+    t = np.arange(0.0, 200.0, 0.02)
+    assert gap_periodicity(t, min_gap=0.5, min_period=0.4, max_period=100.0) is None
+    starts = np.sort(rng.uniform(0.0, 195.0, 6))  # six gaps at random places
+    for s in starts:
+        t = t[(t < s) | (t > s + 1.0)]
+    assert gap_periodicity(t, min_gap=0.5, min_period=0.4, max_period=100.0) is None
+
+
 def test_scan_reports_the_day_for_simulated_ground_photometry():
     params = StarParameters(period=3.7, spot_lifetime=30.0, white_noise=2.0)
     pattern = ObservingPattern.ground(1, 120.0, 15.0)
@@ -100,7 +126,7 @@ def test_scan_reports_the_day_for_simulated_ground_photometry():
     periods = [p.period for p in result.window]
     # the star's visibility window follows the sidereal day and the night the solar day
     assert any(abs(p - 0.99727) < 0.002 or abs(p - 1.0) < 0.002 for p in periods), periods
-    assert all(p.power >= 0.2 for p in result.window)
+    assert all(p.power >= 0.2 for p in result.window if p.source == "window")
     assert result.to_dict()["window"][0]["period"] == pytest.approx(periods[0])
 
 

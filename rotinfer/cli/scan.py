@@ -159,7 +159,8 @@ def _text(prep, result) -> list[str]:
                       for c in result.candidates.candidates[:5])
     lines.append(f"  candidates: {cands or 'none'}")
     if result.window:
-        at = ", ".join(f"{w.period:.4g} d (window power {w.power:.2f})" for w in result.window)
+        at = ", ".join(f"{w.period:.4g} d (window power {w.power:.2f})" if w.source == "window"
+                       else f"{w.period:.4g} d (recurring gaps)" for w in result.window)
         lines.append(f"  periodicities of the sampling itself: {at}; periods there are "
                      "suspect")
     return lines

@@ -23,7 +23,13 @@ from .lombscargle import (
     frequency_grid,
     lomb_scargle,
 )
-from .window import WindowPeak, spectral_window, spectral_window_grid, window_peaks
+from .window import (
+    WindowPeak,
+    gap_periodicity,
+    spectral_window,
+    spectral_window_grid,
+    window_peaks,
+)
 
 __all__ = [
     "ACFPeak",
@@ -40,6 +46,7 @@ __all__ = [
     "build_candidates",
     "fast_method_kwds",
     "frequency_grid",
+    "gap_periodicity",
     "lomb_scargle",
     "masked_autocorrelation",
     "scan",

@@ -84,6 +84,11 @@ class PeriodogramConfig:
         of nightly sampling).
     window_max_peaks : int
         Most such periodicities reported (strongest first).
+    window_min_gap : float
+        Spacings longer than this (days, and than 10 cadences) are gaps; when the gaps
+        recur regularly (downlinks every orbit), their spacing is reported as a
+        periodicity of the sampling too
+        (:func:`~rotinfer.periodogram.window.gap_periodicity`).
     """
 
     oversampling: float = 5.0
@@ -107,6 +112,7 @@ class PeriodogramConfig:
     max_candidates: int = 10
     window_threshold: float = 0.2
     window_max_peaks: int = 5
+    window_min_gap: float = 0.5
 
     def __post_init__(self):
         allowed = ("auto", "fast", "cython", "slow")
@@ -140,6 +146,7 @@ class PeriodogramConfig:
             "max_candidates": (self.max_candidates, 1, math.inf),
             "window_threshold": (self.window_threshold, 0.0, 1.0),
             "window_max_peaks": (self.window_max_peaks, 1, math.inf),
+            "window_min_gap": (self.window_min_gap, 0.0, math.inf),
         }
         for name, (value, lo, hi) in checks.items():
             if not (isinstance(value, int | float) and lo <= value <= hi):

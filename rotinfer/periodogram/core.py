@@ -13,7 +13,7 @@ from .acf import ACFResult, autocorrelation
 from .candidates import CandidateSet, build_candidates
 from .config import PeriodogramConfig
 from .lombscargle import LombScargleResult, lomb_scargle
-from .window import WindowPeak, window_peaks
+from .window import WindowPeak, gap_periodicity, window_peaks
 
 __all__ = ["ScanResult", "available_methods", "scan"]
 
@@ -78,8 +78,9 @@ class ScanResult:
     notes : tuple of str
         Human-readable notes (e.g. the range adjusted to the cadence).
     window : tuple of WindowPeak
-        Periodicities of the sampling itself within the searched range (spectral-window
-        peaks of at least ``[periodogram] window_threshold``; strongest first).
+        Periodicities of the sampling itself within the searched range: spectral-window
+        peaks of at least ``[periodogram] window_threshold`` (strongest first), then the
+        spacing of regularly recurring gaps when it is not one of them.
     """
 
     lomb_scargle: LombScargleResult | None
@@ -182,6 +183,12 @@ def scan(
         threshold=config.window_threshold, oversampling=config.oversampling,
         max_frequencies=config.max_frequencies, max_peaks=config.window_max_peaks,
     )
+    gaps = gap_periodicity(search.time, min_gap=max(config.window_min_gap,
+                                                    10.0 * search.cadence),
+                           min_period=search.min_period, max_period=search.max_period)
+    if gaps is not None and all(abs(np.log(gaps.period / w.period)) > config.dedup_tolerance
+                                for w in window):
+        window = (*window, gaps)
     return ScanResult(
         lomb_scargle=ls, acf=acf, candidates=candidates,
         identifier=prepared.lc.meta.identifier, min_period=search.min_period,

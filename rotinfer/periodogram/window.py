@@ -33,7 +33,8 @@ from scipy.signal import find_peaks
 
 from .lombscargle import frequency_grid, refine_peak
 
-__all__ = ["WindowPeak", "spectral_window", "spectral_window_grid", "window_peaks"]
+__all__ = ["WindowPeak", "gap_periodicity", "spectral_window", "spectral_window_grid",
+           "window_peaks"]
 
 # Most frequencies evaluated at once by the exact sum (memory: 16 bytes x N x chunk).
 _CHUNK = 256
@@ -41,7 +42,7 @@ _CHUNK = 256
 
 @dataclass(frozen=True)
 class WindowPeak:
-    """One peak of the spectral window.
+    """One periodicity of the sampling.
 
     Attributes
     ----------
@@ -51,15 +52,21 @@ class WindowPeak:
         Its frequency in 1/day.
     power : float
         Spectral-window power ``W`` there, in [0, 1].
+    source : {"window", "gaps"}
+        A peak of the spectral window (:func:`window_peaks`), or the spacing of regularly
+        recurring gaps (:func:`gap_periodicity`: downlinks, whose systematics recur with
+        them even where the window is weak).
     """
 
     period: float
     frequency: float
     power: float
+    source: str = "window"
 
     def to_dict(self) -> dict:
         """JSON-ready dictionary (period in days, frequency in 1/day)."""
-        return {"period": self.period, "frequency": self.frequency, "power": self.power}
+        return {"period": self.period, "frequency": self.frequency, "power": self.power,
+                "source": self.source}
 
 
 def spectral_window(time, frequency) -> np.ndarray:
@@ -149,3 +156,49 @@ def window_peaks(
             found.append(WindowPeak(period=1.0 / f_peak, frequency=f_peak, power=p_peak))
     found.sort(key=lambda p: -p.power)
     return tuple(found[:max_peaks])
+
+
+def gap_periodicity(time, *, min_gap: float, min_period: float, max_period: float,
+                    tolerance: float = 0.1) -> WindowPeak | None:
+    """The spacing of regularly recurring gaps, when there is one.
+
+    A space telescope that stops for a downlink every orbit leaves gaps one orbit apart
+    (13.7 d for two-orbit sectors, about 30 d for a year observed in months), and the
+    thermal settling after each gap recurs with them; a period there deserves the same
+    suspicion as one on the day from the ground (common practice), yet one short gap per
+    orbit barely shows in the spectral window.
+
+    Parameters
+    ----------
+    time : array_like
+        Observation times in days.
+    min_gap : float
+        Spacings between consecutive times longer than this (days) are gaps.
+    min_period, max_period : float
+        Only a periodicity inside this range (days) is returned.
+    tolerance : float
+        The marks (first time, centre of every gap, last time) recur regularly when at
+        least two thirds of their spacings lie within this fraction of the median spacing.
+
+    Returns
+    -------
+    WindowPeak or None
+        ``source="gaps"``, period = the median spacing of the marks (at least three of
+        them), power = the spectral window there.
+    """
+    t = np.sort(np.asarray(time, dtype=float))
+    t = t[np.isfinite(t)]
+    if t.size < 2:
+        return None
+    dt = np.diff(t)
+    gaps = np.flatnonzero(dt > min_gap)
+    marks = np.concatenate([[t[0]], t[gaps] + 0.5 * dt[gaps], [t[-1]]])
+    spacing = np.diff(marks)
+    if spacing.size < 2:
+        return None
+    period = float(np.median(spacing))
+    regular = np.mean(np.abs(spacing / period - 1.0) < tolerance) >= 2.0 / 3.0
+    if not (regular and min_period <= period <= max_period):
+        return None
+    return WindowPeak(period=period, frequency=1.0 / period,
+                      power=float(spectral_window(t, [1.0 / period])[0]), source="gaps")
