@@ -11,9 +11,10 @@ Conventions
   [lo, hi] day intervals, several when the posterior is multimodal.
 * MAP: the highest posterior point found by the optimiser or the sampler.
 * Sampling check: the posterior probability of periods within
-  ``[detection] sampling_tolerance`` of a periodicity of the sampling (a peak of
-  the spectral window found by the periodogram stage; the day, for ground-based
-  data), where a period may be an artefact of when the star was observed.
+  ``[detection] sampling_tolerance`` of a periodicity of the sampling found by the
+  periodogram stage (a peak of the spectral window — the day, for ground-based
+  data — or the spacing of recurring downlink gaps), where a period may be an
+  artefact of when the star was observed.
 * Amplitude: the standard deviation of the rotation signal (the GP rotation
   term), in ppt; coherence time: the damping time of the mode at P, in days and
   in rotations.
@@ -98,8 +99,9 @@ class DetectionConfig:
         A baseline period agrees with the posterior when it lies in the 95 %
         interval widened by this fraction.
     sampling_tolerance : float
-        A period is "at" a periodicity of the sampling (a spectral-window peak
-        reported by the periodogram stage) when within this fraction of it.
+        A period is "at" a periodicity of the sampling (a spectral-window peak or
+        the spacing of recurring gaps, reported by the periodogram stage) when
+        within this fraction of it.
     sampling_probability : float
         The sampling warning is raised when the posterior probability of periods
         at such a periodicity exceeds this.
@@ -267,8 +269,8 @@ def sampling_check(period, weights, median: float, scan: dict | None,
     median : float
         The reported period (days).
     scan : dict or None
-        ``ScanResult.to_dict()``: its ``window`` peaks (periods in days, window power)
-        and the searched range; None gives an empty block.
+        ``ScanResult.to_dict()``: its ``window`` periodicities (periods in days, window
+        power, source) and the searched range; None gives an empty block.
     config : DetectionConfig
 
     Returns
@@ -291,14 +293,15 @@ def sampling_check(period, weights, median: float, scan: dict | None,
     peaks = [p for p in (scan.get("window") or []) if p.get("period")]
     lo, hi = scan.get("min_period"), scan.get("max_period")
 
-    def near(p):
-        return any(abs(math.log(p / q["period"])) < tol for q in peaks)
+    def at(p, q):
+        """Whether period(s) ``p`` lie within the tolerance of periodicity ``q``."""
+        return np.abs(np.log(np.asarray(p, dtype=float) / q["period"])) < tol
 
     any_near = np.zeros(period.size, dtype=bool)
     rows = []
     aliases = []
     for q in peaks:
-        inside = np.abs(np.log(period / q["period"])) < tol
+        inside = at(period, q)
         any_near |= inside
         rows.append({**q, "probability": float(np.sum(w[inside]))})
         if q.get("source", "window") != "window":
@@ -310,8 +313,8 @@ def sampling_check(period, weights, median: float, scan: dict | None,
     baselines = {}
     for key in ("lomb_scargle", "acf"):
         p = (scan.get(key) or {}).get("period")
-        baselines[key] = (bool(near(p)) if p is not None and np.isfinite(p) and p > 0
-                          else None)
+        baselines[key] = (any(bool(at(p, q)) for q in peaks)
+                          if p is not None and np.isfinite(p) and p > 0 else None)
     return {
         "periodicities": rows,
         "probability": probability,

@@ -26,6 +26,7 @@ from .lombscargle import (
 from .window import (
     WindowPeak,
     gap_periodicity,
+    sampling_periodicities,
     spectral_window,
     spectral_window_grid,
     window_peaks,
@@ -49,6 +50,7 @@ __all__ = [
     "gap_periodicity",
     "lomb_scargle",
     "masked_autocorrelation",
+    "sampling_periodicities",
     "scan",
     "spectral_window",
     "spectral_window_grid",

@@ -13,7 +13,7 @@ from .acf import ACFResult, autocorrelation
 from .candidates import CandidateSet, build_candidates
 from .config import PeriodogramConfig
 from .lombscargle import LombScargleResult, lomb_scargle
-from .window import WindowPeak, gap_periodicity, window_peaks
+from .window import WindowPeak, sampling_periodicities
 
 __all__ = ["ScanResult", "available_methods", "scan"]
 
@@ -144,8 +144,8 @@ def scan(
     ``candidates_per_method`` strongest Lomb–Scargle peaks and the autocorrelation period
     (when reliable), each with its half and double, scored as :class:`PeriodCandidate`
     describes. ``window`` lists the sampling's own periodicities
-    (:func:`~rotinfer.periodogram.window.window_peaks`), against which the summary
-    checks the posterior period.
+    (:func:`~rotinfer.periodogram.window.sampling_periodicities`), against which the
+    summary checks the posterior period.
 
     References
     ----------
@@ -178,17 +178,9 @@ def scan(
         harmonic_weight=config.harmonic_weight, tolerance=config.dedup_tolerance,
         max_candidates=config.max_candidates,
     )
-    window = window_peaks(
-        search.time, min_period=search.min_period, max_period=search.max_period,
-        threshold=config.window_threshold, oversampling=config.oversampling,
-        max_frequencies=config.max_frequencies, max_peaks=config.window_max_peaks,
-    )
-    gaps = gap_periodicity(search.time, min_gap=max(config.window_min_gap,
-                                                    10.0 * search.cadence),
-                           min_period=search.min_period, max_period=search.max_period)
-    if gaps is not None and all(abs(np.log(gaps.period / w.period)) > config.dedup_tolerance
-                                for w in window):
-        window = (*window, gaps)
+    window = sampling_periodicities(search.time, cadence=search.cadence,
+                                    min_period=search.min_period,
+                                    max_period=search.max_period, config=config)
     return ScanResult(
         lomb_scargle=ls, acf=acf, candidates=candidates,
         identifier=prepared.lc.meta.identifier, min_period=search.min_period,

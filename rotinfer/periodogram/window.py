@@ -33,8 +33,8 @@ from scipy.signal import find_peaks
 
 from .lombscargle import frequency_grid, refine_peak
 
-__all__ = ["WindowPeak", "gap_periodicity", "spectral_window", "spectral_window_grid",
-           "window_peaks"]
+__all__ = ["WindowPeak", "gap_periodicity", "sampling_periodicities", "spectral_window",
+           "spectral_window_grid", "window_peaks"]
 
 # Most frequencies evaluated at once by the exact sum (memory: 16 bytes x N x chunk).
 _CHUNK = 256
@@ -202,3 +202,37 @@ def gap_periodicity(time, *, min_gap: float, min_period: float, max_period: floa
         return None
     return WindowPeak(period=period, frequency=1.0 / period,
                       power=float(spectral_window(t, [1.0 / period])[0]), source="gaps")
+
+
+def sampling_periodicities(time, *, cadence: float, min_period: float, max_period: float,
+                           config) -> tuple[WindowPeak, ...]:
+    """Every periodicity of the sampling within a period range, as the scan reports them.
+
+    The spectral-window peaks (:func:`window_peaks`, ``config.window_threshold``, the
+    Lomb–Scargle grid's ``oversampling`` and ``max_frequencies``, at most
+    ``config.window_max_peaks``), strongest first, then the spacing of recurring gaps
+    (:func:`gap_periodicity`; gaps longer than ``config.window_min_gap`` days and 10
+    cadences) unless it lies within ``config.dedup_tolerance`` of one of them (nightly
+    gaps repeat the window's day).
+
+    Parameters
+    ----------
+    time : array_like
+        Observation times in days.
+    cadence : float
+        Typical spacing in days.
+    min_period, max_period : float
+        Period range in days.
+    config : PeriodogramConfig
+    """
+    window = window_peaks(
+        time, min_period=min_period, max_period=max_period,
+        threshold=config.window_threshold, oversampling=config.oversampling,
+        max_frequencies=config.max_frequencies, max_peaks=config.window_max_peaks,
+    )
+    gaps = gap_periodicity(time, min_gap=max(config.window_min_gap, 10.0 * cadence),
+                           min_period=min_period, max_period=max_period)
+    if gaps is not None and all(abs(np.log(gaps.period / w.period)) > config.dedup_tolerance
+                                for w in window):
+        window = (*window, gaps)
+    return window
