@@ -364,6 +364,20 @@ def detection_statistics(model, modes, aperiodic) -> tuple[float, float]:
     return float(delta_bic), float(two_ln_b)
 
 
+def _aperiodic_backgrounds(posterior: Posterior) -> int | None:
+    """Background oscillators of the comparison model fit_aperiodic kept (None if none).
+
+    Its parameters are two per oscillator plus those it shares with the rotation model
+    besides the rotation term (5) and that model's own oscillators: jitter, and the
+    night-offset scatter and the mean where the model has them.
+    """
+    if posterior.aperiodic is None:
+        return None
+    model = posterior.model
+    shared = model.ndim - 5 - 2 * len(model.background_suffixes)
+    return (int(np.size(posterior.aperiodic.theta)) - shared) // 2
+
+
 def detection(posterior: Posterior, config: DetectionConfig) -> dict:
     """Periodic against aperiodic model: both statistics, and the decision on the configured one.
 
@@ -394,9 +408,7 @@ def detection(posterior: Posterior, config: DetectionConfig) -> dict:
         "false_alarm_upper_95": config.false_alarm_upper_95,
         "calibration": config.calibration,
         "periodic_backgrounds": len(posterior.model.background_suffixes),
-        "aperiodic_backgrounds": (
-            (int(np.size(posterior.aperiodic.theta)) - 2) // 2
-            if posterior.aperiodic is not None else None),
+        "aperiodic_backgrounds": _aperiodic_backgrounds(posterior),
         "note": note,
     }
 
@@ -543,7 +555,8 @@ def summarise(
     units = {
         "secondary_fraction": "", "background_amplitude_ppt": "ppt",
         "background_timescale_days": "d", "background2_amplitude_ppt": "ppt",
-        "background2_timescale_days": "d", "jitter_ppt": "ppt", "mean": "relative flux",
+        "background2_timescale_days": "d", "night_offset_ppt": "ppt", "jitter_ppt": "ppt",
+        "mean": "relative flux",
     }
     nuisance = {
         k: _describe(phys[k], w, map_phys[k][0], units[k]) for k in units if k in phys

@@ -127,6 +127,7 @@ def test_detection_statistics():
         k_p - k_a) * math.log(n)
     det = detection(post, DetectionConfig(threshold=expected - 1))
     assert det["delta_bic"] == pytest.approx(expected)
+    assert det["aperiodic_backgrounds"] == 2 and det["periodic_backgrounds"] == 1
     assert det["detected"]
     assert not detection(post, DetectionConfig(threshold=expected + 1))["detected"]
     lap = detection(post, DetectionConfig(statistic="laplace", threshold=0.0))
