@@ -162,6 +162,10 @@ REPORT_ONLY = (("periodogram", "window_threshold"), ("periodogram", "window_max_
                ("detection", "sampling_probability"))
 
 
+#: Options of the per-night offset term, which leave the fit unchanged while it is "off".
+NIGHT_OPTIONS = ("night_offsets", "night_offset_ppt", "night_gap_hours")
+
+
 def _run_key(seed: int, per_class: int, config: str) -> dict:
     """What must match for stars of an earlier run to be carried into this one: the seed,
     the stars per class, the configuration file and its resolved options (defaults
@@ -182,6 +186,11 @@ def _run_key(seed: int, per_class: int, config: str) -> dict:
     # (dropped, not blanked, so that stars fitted before the check existed still match)
     for table, key in REPORT_ONLY:
         options[table].pop(key, None)
+    # ... nor the options of a model term that is switched off (the fit is then the same
+    # as before the term existed: dropped for the same reason)
+    if options["model"].get("night_offsets") == "off":
+        for key in NIGHT_OPTIONS:
+            options["model"].pop(key, None)
     text = json.dumps(options, sort_keys=True, default=str)
     resolved = hashlib.sha256(text.encode()).hexdigest()[:16]
     return {"seed": int(seed), "per_class": int(per_class), "config_sha256": digest,

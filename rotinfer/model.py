@@ -17,6 +17,12 @@ The light curve (relative flux, normalised to median 1 per segment by
   whose noise has two timescales: with one, such a posterior can have two modes
   (the oscillator on the fast noise or on the slow) that separate ensembles
   settle on differently (R-hat far above 1; BENCHMARKS.md, section 1b).
+* night offsets (optional, ``night_offsets``; off by default) — ground-based
+  photometry has a zero-point offset per night (comparison stars, airmass, clouds)
+  that the rotation term would otherwise have to explain, so that posteriors lock on
+  the day. Each night's offset is Normal(0, sigma_night^2), integrated out
+  analytically at the cost of one celerite column (:meth:`RotationModel.log_likelihood`);
+  sigma_night is sampled. "auto" applies it to nightly sampling (:func:`is_nightly`).
 * white noise — the per-point variance is ``flux_err**2 + jitter**2``. The
   jitter term is always fitted: it matters most when the input had no
   uncertainties and ``prepare`` had to estimate them from the scatter.
@@ -71,6 +77,8 @@ sampled parameter           meaning
 ``log_background_amplitude`` ln sigma_bg (relative flux)
 ``log_background_timescale`` ln tau_bg, damping time of the background in days
 ``log_background2_*``, ...  further background oscillators (aperiodic model only)
+``log_night_offset``        ln sigma_night, scatter of the per-night offsets (relative
+                            flux); only with the night term
 ``log_jitter``              ln s, extra white noise (relative flux)
 ``mean``                    shared mean level (relative flux); only when
                             ``marginalise_mean = false``
@@ -117,6 +125,8 @@ __all__ = [
     "ModelConfig",
     "RotationModel",
     "coherence_from_quality",
+    "is_nightly",
+    "night_index",
     "quality_from_coherence",
 ]
 
@@ -127,6 +137,14 @@ _LN_2PI = math.log(2.0 * math.pi)
 _EMPTY = np.empty(0)
 #: Two-sided 95 % point of the standard normal (Phi^-1(0.975)).
 _Z95 = 1.959963984540054
+#: Allowed values of ``[model] night_offsets``.
+NIGHT_OFFSET_CHOICES = ("off", "auto", "on")
+#: ``is_nightly``: fewest nights, and the longest median night (days), of nightly sampling.
+NIGHTLY_MIN_NIGHTS = 10
+NIGHTLY_MAX_MEDIAN_DAYS = 0.6
+#: The night term's exponent c x (spacing of consecutive night centres): its covariance
+#: between nights is exp(-39) ~ 1e-17 of that within a night, below double precision.
+_NIGHT_DECAY = 39.0
 
 
 @dataclass(frozen=True)
@@ -177,6 +195,15 @@ class ModelConfig:
     marginalise_mean : bool
         Integrate the shared mean out analytically under its prior (default) rather
         than sample it as a parameter.
+    night_offsets : {"off", "auto", "on"}
+        A zero-point offset per night (ground-based photometry), integrated out
+        analytically: a covariance term sigma_night^2 within each night and zero
+        between nights, sigma_night sampled (:func:`night_index`). "auto" turns it on
+        where the sampling is nightly (:func:`is_nightly`); "off" (default) never.
+    night_offset_ppt : [lo, hi]
+        95 % prior range of sigma_night, ppt.
+    night_gap_hours : float
+        A gap at least this long between two points starts a new night, hours.
     """
 
     period_range: tuple[float, ...] | None = None
@@ -193,6 +220,9 @@ class ModelConfig:
     periodic_backgrounds: int | str = "auto"
     mean: tuple[float, ...] = (1.0, 0.05)
     marginalise_mean: bool = True
+    night_offsets: str = "off"
+    night_offset_ppt: tuple[float, ...] = (0.01, 30.0)
+    night_gap_hours: float = 6.0
 
     def __post_init__(self):
         def pair(name, positive=True, increasing=True):
@@ -209,7 +239,7 @@ class ModelConfig:
         pair("period_range")
         for name in (
             "amplitude_ppt", "coherence_rotations", "background_amplitude_ppt",
-            "background_timescale_days", "jitter_ppt",
+            "background_timescale_days", "jitter_ppt", "night_offset_ppt",
         ):
             pair(name)
         pair("secondary_fraction_beta", increasing=False)
@@ -226,6 +256,13 @@ class ModelConfig:
         if isinstance(n_pb, bool) or n_pb not in (1, 2, "auto"):
             raise ConfigError(
                 f"[model] periodic_backgrounds: allowed 1, 2 or \"auto\", got {n_pb!r}")
+        if self.night_offsets not in NIGHT_OFFSET_CHOICES:
+            raise ConfigError(
+                f"[model] night_offsets: allowed {', '.join(map(repr, NIGHT_OFFSET_CHOICES))}, "
+                f"got {self.night_offsets!r}")
+        gap = self.night_gap_hours
+        if isinstance(gap, bool) or not (isinstance(gap, int | float) and 0 < gap < 24):
+            raise ConfigError(f"[model] night_gap_hours: must be in (0, 24) hours, got {gap!r}")
         if not (np.isfinite(self.max_secondary_fraction) and self.max_secondary_fraction > 0):
             raise ConfigError(
                 "[model] max_secondary_fraction: must be positive, "
@@ -236,6 +273,69 @@ class ModelConfig:
 def background_suffixes(n: int) -> tuple[str, ...]:
     """Name suffixes of ``n`` background oscillators: "", "2", "3", ..."""
     return ("",) + tuple(str(k) for k in range(2, n + 1))
+
+
+def night_index(time, gap_hours: float) -> np.ndarray:
+    """Night of each point: 0, 1, 2, ... with a new night after every gap >= ``gap_hours``.
+
+    Parameters
+    ----------
+    time : array_like, shape (n,)
+        Sorted times, days.
+    gap_hours : float
+        Shortest gap between two nights, hours.
+
+    Returns
+    -------
+    ndarray of int64, shape (n,)
+    """
+    t = np.asarray(time, dtype=float)
+    if t.size == 0:
+        return np.zeros(0, dtype=np.int64)
+    new = np.diff(t) >= gap_hours / 24.0
+    return np.concatenate(([0], np.cumsum(new))).astype(np.int64)
+
+
+def is_nightly(time, gap_hours: float) -> bool:
+    """Whether the sampling is nightly: at least ``NIGHTLY_MIN_NIGHTS`` (10) stretches
+    separated by gaps >= ``gap_hours`` whose median length is under
+    ``NIGHTLY_MAX_MEDIAN_DAYS`` (0.6 d, i.e. 14.4 h: a night's dark time), as in
+    ground-based photometry; space-mission sectors and quarters (stretches of days
+    between downlinks) are not.
+    """
+    t = np.asarray(time, dtype=float)
+    night = night_index(t, gap_hours)
+    n = int(night[-1]) + 1 if t.size else 0
+    if n < NIGHTLY_MIN_NIGHTS:
+        return False
+    first = np.r_[0, np.flatnonzero(np.diff(night)) + 1]
+    last = np.r_[first[1:] - 1, t.size - 1]
+    return bool(np.median(t[last] - t[first]) < NIGHTLY_MAX_MEDIAN_DAYS)
+
+
+def _night_warp(time, night):
+    """Scaled coordinates of the night term (see :meth:`RotationModel.log_likelihood`).
+
+    Returns ``(c, up, down)``: the decay rate c (1/d) and exp(+-c (t - s_k)), s_k the
+    centre of night k. With U = sigma^2 up and V = down as one real celerite column,
+    U_n V_m exp(-c (t_n - t_m)) = sigma^2 exp(-c (s_k(n) - s_k(m))): sigma^2 within a
+    night and at most exp(-39) sigma^2 between nights, c being 39 over the smallest
+    spacing of consecutive night centres.
+    """
+    first = np.r_[0, np.flatnonzero(np.diff(night)) + 1]
+    last = np.r_[first[1:] - 1, time.size - 1]
+    centre = 0.5 * (time[first] + time[last])
+    spacing = np.diff(centre)
+    if spacing.size == 0 or not np.all(spacing > 0):
+        c = 0.0
+    else:
+        c = _NIGHT_DECAY / float(spacing.min())
+    offset = time - centre[night]
+    up = np.exp(c * offset)
+    down = np.exp(-c * offset)
+    for arr in (up, down):
+        arr.setflags(write=False)
+    return c, up, down
 
 
 def _softplus(x: float) -> float:
@@ -335,6 +435,11 @@ class RotationModel:
         background oscillators + jitter + mean; :meth:`aperiodic`).
     source : str
         Name used in error messages.
+    basin : (float, float), optional
+        Period limits of one mode (:meth:`restricted`).
+    night : ndarray of int, shape (n,), optional
+        Night of each point (non-decreasing; :func:`night_index`): a zero-point offset
+        per night is integrated out (``[model] night_offsets``). None: no such term.
 
     Use :meth:`from_prepared` to build one from a :class:`PreparedLightCurve`.
     """
@@ -347,6 +452,7 @@ class RotationModel:
     periodic: bool = True
     source: str = "<array>"
     basin: tuple[float, float] | None = None
+    night: np.ndarray | None = None
 
     def __post_init__(self):
         t = np.ascontiguousarray(self.time, dtype=np.float64)
@@ -372,6 +478,14 @@ class RotationModel:
         object.__setattr__(self, "flux_err", e)
         object.__setattr__(self, "_var", e * e)
         object.__setattr__(self, "period_range", (lo, hi))
+        if self.night is not None:
+            night = np.ascontiguousarray(self.night, dtype=np.int64)
+            if night.shape != t.shape or np.any(np.diff(night) < 0) or night[0] < 0:
+                raise InputError(self.source, "night must be non-decreasing night numbers, "
+                                 "one per point")
+            night.setflags(write=False)
+            object.__setattr__(self, "night", night)
+        self._set_night()
         self._set_priors()
         if self.basin is not None:
             blo, bhi = (float(v) for v in self.basin)
@@ -396,9 +510,13 @@ class RotationModel:
             prange = (float(prepared.min_period), float(prepared.max_period))
         source = lc.meta.sources[0] if lc.meta.sources else "<array>"
         err = lc.flux_err if lc.flux_err is not None else np.zeros(len(lc))
+        mode = config.night_offsets
+        night = None
+        if mode == "on" or (mode == "auto" and is_nightly(lc.time, config.night_gap_hours)):
+            night = night_index(lc.time, config.night_gap_hours)
         return cls(
             time=lc.time, flux=lc.flux, flux_err=err, config=config,
-            period_range=prange, periodic=periodic, source=source,
+            period_range=prange, periodic=periodic, source=source, night=night,
         )
 
     def restricted(self, basin: tuple[float, float] | None) -> RotationModel:
@@ -420,6 +538,23 @@ class RotationModel:
     def with_periodic_backgrounds(self, n: int) -> RotationModel:
         """The same rotation model with ``n`` (1 or 2) background oscillators."""
         return replace(self, config=replace(self.config, periodic_backgrounds=n))
+
+    def _set_night(self) -> None:
+        """The night term's scaled coordinates (on creation and after unpickling)."""
+        if self.night is None:
+            object.__setattr__(self, "_night", None)
+            return
+        c, up, down = _night_warp(self.time, self.night)
+        if not (np.all(np.isfinite(up)) and np.all(np.isfinite(down))
+                and float(np.max(up)) < 1e100 and float(np.max(down)) < 1e100):
+            raise InputError(self.source, "nights too close together for the night-offset "
+                             "term; raise [model] night_gap_hours")
+        object.__setattr__(self, "_night", (c, up, down))
+
+    @property
+    def n_nights(self) -> int:
+        """Nights with their own zero-point offset (0 without the night term)."""
+        return 0 if self.night is None else int(self.night[-1]) + 1
 
     def _set_priors(self) -> None:
         """Priors and the names derived from them (on creation and after unpickling)."""
@@ -465,6 +600,9 @@ class RotationModel:
         for suffix in suffixes:
             pri[f"log_background{suffix}_amplitude"] = _Prior("normal", *bg_amp)
             pri[f"log_background{suffix}_timescale"] = _Prior("normal", *bg_tau)
+        if self.night is not None:
+            pri["log_night_offset"] = _Prior("normal", *_lognormal_from_range(
+                c.night_offset_ppt[0] * 1e-3, c.night_offset_ppt[1] * 1e-3))
         pri["log_jitter"] = _Prior(
             "normal", *_lognormal_from_range(c.jitter_ppt[0] * 1e-3, c.jitter_ppt[1] * 1e-3)
         )
@@ -518,6 +656,8 @@ class RotationModel:
         for suffix in self.background_suffixes:
             out[f"background{suffix}_sigma"] = math.exp(th[f"log_background{suffix}_amplitude"])
             out[f"background{suffix}_tau"] = math.exp(th[f"log_background{suffix}_timescale"])
+        if "log_night_offset" in th:
+            out["night_offset"] = math.exp(th["log_night_offset"])
         out["jitter"] = math.exp(th["log_jitter"])
         if "mean" in th:
             out["mean"] = th["mean"]
@@ -528,7 +668,8 @@ class RotationModel:
 
         Keywords: ``period`` (d), ``sigma``, ``coherence_rotations``, ``f``, ``r``,
         ``background_sigma``, ``background_tau`` (d), ``background2_sigma``,
-        ``background2_tau`` (d), ``jitter``, ``mean``.
+        ``background2_tau`` (d), ``night_offset`` (relative flux; default 1e-3 when
+        the model has the night term and it is not given), ``jitter``, ``mean``.
         """
         vals = []
         for name in self.names:
@@ -547,6 +688,8 @@ class RotationModel:
                 vals.append(math.log(natural[name[len("log_"):-len("_amplitude")] + "_sigma"]))
             elif name.startswith("log_background") and name.endswith("_timescale"):
                 vals.append(math.log(natural[name[len("log_"):-len("_timescale")] + "_tau"]))
+            elif name == "log_night_offset":
+                vals.append(math.log(natural.get("night_offset", 1e-3)))
             elif name == "log_jitter":
                 vals.append(math.log(natural["jitter"]))
             else:
@@ -562,8 +705,9 @@ class RotationModel:
             ``period`` (d), ``amplitude_ppt`` (standard deviation of the rotation
             signal, ppt), ``coherence_days``, ``coherence_rotations``,
             ``secondary_fraction`` (f), ``background_amplitude_ppt``,
-            ``background_timescale_days``, ``jitter_ppt``, ``mean`` (only when it is
-            sampled) — those that the model has.
+            ``background_timescale_days``, ``night_offset_ppt`` (the per-night
+            zero-point scatter), ``jitter_ppt``, ``mean`` (only when it is sampled) —
+            those that the model has.
         """
         s = np.atleast_2d(np.asarray(samples, dtype=float))
         col = {n: s[:, i] for i, n in enumerate(self.names)}
@@ -583,6 +727,8 @@ class RotationModel:
             amplitude = col[f"log_background{sx}_amplitude"]
             out[f"background{sx}_amplitude_ppt"] = 1e3 * np.exp(amplitude)
             out[f"background{sx}_timescale_days"] = np.exp(col[f"log_background{sx}_timescale"])
+        if "log_night_offset" in col:
+            out["night_offset_ppt"] = 1e3 * np.exp(col["log_night_offset"])
         out["jitter_ppt"] = 1e3 * np.exp(col["log_jitter"])
         if "mean" in col:
             out["mean"] = col["mean"].copy()
@@ -677,6 +823,16 @@ class RotationModel:
         two-column solve, A = z_1^T D^-1 z_1, B = z_1^T D^-1 z_r, C = z_r^T D^-1 z_r:
         ln det = ln det K + ln(1 + s0^2 A) (determinant lemma) and the quadratic
         form is C - s0^2 B^2 / (1 + s0^2 A) (Sherman-Morrison).
+
+        With the night term (``[model] night_offsets``) K includes sigma_night^2 B B^T,
+        B the (n, n_nights) indicator of each point's night, so each night's zero-point
+        offset, Normal(0, sigma_night^2), is integrated out too. It costs one more
+        celerite column, not a rank-n_nights update: in the scaled coordinates
+        u_n = sigma_night^2 exp(c (t_n - s_k)), v_n = exp(-c (t_n - s_k)), s_k the
+        centre of point n's night k, the real term u_n v_m exp(-c (t_n - t_m)) equals
+        sigma_night^2 exp(-c (s_k(n) - s_k(m))), an exponential kernel of the night
+        centres: sigma_night^2 within a night and, with c (s_k+1 - s_k) >= 39,
+        below 1e-17 sigma_night^2 between nights (tested against the dense block matrix).
         """
         return self._log_likelihood(theta, profile=False)
 
@@ -721,6 +877,38 @@ class RotationModel:
             return -math.inf
         return value if math.isfinite(value) else -math.inf
 
+    def _system(self, p):
+        """celerite2's representation of the covariance for natural parameters ``p``.
+
+        Returns ``(c, a, U, V)``: decay rates (J,), diagonal (n,), and the (n, J)
+        semiseparable factors, with the night term (if any) as a last real column.
+        """
+        ac, bc, cc, dc = self._sho_coefficients(p)
+        t = self.time
+        n, j = t.size, 2 * ac.size
+        extra = 0 if self._night is None else 1
+        c = np.empty(j + extra)
+        c[0:j:2] = cc
+        c[1:j:2] = cc
+        diag = self._var + p["jitter"] ** 2
+        a, u, v = _driver.get_celerite_matrices(
+            _EMPTY, ac, bc, dc, t, diag, np.empty(n), np.empty((n, j)), np.empty((n, j))
+        )
+        if extra:
+            c_night, up, down = self._night
+            s2 = p["night_offset"] ** 2
+            c[j] = c_night
+            u = np.column_stack((u, s2 * up))
+            v = np.column_stack((v, down))
+            a = a + s2
+        return c, a, u, v
+
+    def _factor(self, p):
+        """The factorisation K = L D L^T: ``(c, U, d, W)`` (celerite2's driver)."""
+        c, a, u, v = self._system(p)
+        d, w = _driver.factor(self.time, c, a, u, v, a, v.copy())
+        return c, u, d, w
+
     def _factor_solve(self, p):
         """celerite2's factorisation K = L D L^T for natural parameters ``p``, and
         L^-1 applied to y - mean (sampled mean), or to [y - mu0, 1] (marginalised).
@@ -729,17 +917,8 @@ class RotationModel:
         The compiled driver is called directly (``get_celerite_matrices``, ``factor``,
         ``solve_lower``), skipping the Python term and ``GaussianProcess`` layers.
         """
-        ac, bc, cc, dc = self._sho_coefficients(p)
-        t = self.time
-        n, j = t.size, 2 * ac.size
-        c = np.empty(j)
-        c[0::2] = cc
-        c[1::2] = cc
-        diag = self._var + p["jitter"] ** 2
-        a, u, v = _driver.get_celerite_matrices(
-            _EMPTY, ac, bc, dc, t, diag, np.empty(n), np.empty((n, j)), np.empty((n, j))
-        )
-        d, w = _driver.factor(t, c, a, u, v, a, v.copy())
+        c, u, d, w = self._factor(p)
+        t, n = self.time, self.time.size
         if self.config.marginalise_mean:
             r = np.empty((n, 2))
             r[:, 0] = self.flux - self.config.mean[0]
@@ -764,6 +943,30 @@ class RotationModel:
             precision = float((z[:, 1] ** 2 / d).sum()) + 1.0 / self.config.mean[1] ** 2
             shift = float((z[:, 1] * z[:, 0] / d).sum()) / precision
         return self.config.mean[0] + shift, 1.0 / math.sqrt(precision)
+
+    def night_offsets_posterior(self, theta) -> np.ndarray:
+        """Conditional posterior mean of each point's night offset given ``theta``.
+
+        o = sigma_night^2 B B^T C^-1 (y - m), with C the full covariance (night term
+        included), B the point-to-night indicator matrix and m the mean level at its
+        conditional posterior mean (:meth:`mean_posterior`); per point, relative flux.
+        Zeros without the night term. Subtracting ``o`` from the data leaves the
+        predictive mean of the other terms unchanged: (C - N)^-1 (y - m - o) =
+        C^-1 (y - m) for N = sigma_night^2 B B^T.
+        """
+        if self._night is None:
+            return np.zeros(self.time.size)
+        p = self.unpack(theta)
+        mean, _ = self.mean_posterior(theta)
+        with np.errstate(all="ignore"):
+            c, u, d, w = self._factor(p)
+            t = self.time
+            r = (self.flux - mean)[:, None].copy()
+            z = _driver.solve_lower(t, c, u, w, r, r)
+            z /= d[:, None]
+            alpha = _driver.solve_upper(t, c, u, w, z, z)[:, 0]
+        per_night = np.bincount(self.night, weights=alpha, minlength=self.n_nights)
+        return p["night_offset"] ** 2 * per_night[self.night]
 
     def log_prob(self, theta) -> float:
         """Log posterior (unnormalised by the evidence): log prior + log likelihood."""
@@ -805,9 +1008,15 @@ class RotationModel:
         """
         p = self.unpack(theta)
         mean = p["mean"] if "mean" in p else float(rng.normal(*self.config.mean))
-        gp = celerite2.GaussianProcess(self._kernel(p), mean=mean)
-        gp.compute(self.time, diag=self._var + p["jitter"] ** 2, check_sorted=False)
-        return gp.dot_tril(rng.standard_normal(self.time.size)) + mean
+        if self._night is None:
+            gp = celerite2.GaussianProcess(self._kernel(p), mean=mean)
+            gp.compute(self.time, diag=self._var + p["jitter"] ** 2, check_sorted=False)
+            return gp.dot_tril(rng.standard_normal(self.time.size)) + mean
+        # with the night term: L sqrt(D) z from the driver's own factorisation (what
+        # celerite2's dot_tril does), so the draw includes the per-night offsets
+        c, u, d, w = self._factor(p)
+        z = (rng.standard_normal(self.time.size) * np.sqrt(d))[:, None]
+        return _driver.matmul_lower(self.time, c, u, w, z, z.copy())[:, 0] + mean
 
     def __getstate__(self):
         # Only data and configuration travel; priors are rebuilt on arrival.
@@ -816,4 +1025,5 @@ class RotationModel:
     def __setstate__(self, state):
         self.__dict__.update(state)
         object.__setattr__(self, "_var", self.flux_err * self.flux_err)
+        self._set_night()
         self._set_priors()

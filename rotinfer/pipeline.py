@@ -13,6 +13,7 @@ A star's result folder holds:
     length n per reported quantity — ``period`` (d), ``amplitude_ppt``,
     ``coherence_days``, ``coherence_rotations``, ``secondary_fraction``,
     ``background_amplitude_ppt``, ``background_timescale_days`` (d),
+    ``night_offset_ppt`` (only with the night term, ``[model] night_offsets``),
     ``jitter_ppt`` and, only when ``[model] marginalise_mean = false``, ``mean``
     (by default the mean level is integrated out, not sampled) — plus ``weight``
     (sums to 1; draws of a mode carry

@@ -185,5 +185,9 @@ def predict(model, theta, new_time=None, *,
     # predictive mean of Rasmussen & Williams (2006) eq. 2.41; its small variance
     # (mean_posterior's sd squared) is left out of ``sd``
     mean, _ = model.mean_posterior(theta)
-    return predict_arrays(model.kernel(theta), model.time, model.flux, variance, new_time,
+    # per-night zero-point offsets (the night term) leave at their conditional posterior
+    # mean, which keeps the predictive mean exact (RotationModel.night_offsets_posterior);
+    # their uncertainty is not added to ``sd``
+    flux = model.flux - model.night_offsets_posterior(theta)
+    return predict_arrays(model.kernel(theta), model.time, flux, variance, new_time,
                           mean=mean, max_bytes=max_bytes, source=model.source)

@@ -561,6 +561,8 @@ def summarise(
     nuisance = {
         k: _describe(phys[k], w, map_phys[k][0], units[k]) for k in units if k in phys
     }
+    if "night_offset_ppt" in nuisance:
+        nuisance["night_offset_ppt"]["nights"] = posterior.model.n_nights
 
     # the reference for harmonic relations: median period of the most probable sampled mode
     top = max(range(len(posterior.sampled)), key=lambda k: posterior.sampled[k].probability)

@@ -28,6 +28,7 @@ TRACE_QUANTITIES = (
     ("secondary_fraction", "P/2-mode fraction f"),
     ("background_amplitude_ppt", "Background (ppt)"),
     ("background_timescale_days", "Background time (d)"),
+    ("night_offset_ppt", "Night offsets (ppt)"),
     ("jitter_ppt", "Jitter (ppt)"),
     ("mean", "Mean level − 1 (ppt)"),
 )
@@ -36,7 +37,8 @@ TRACE_QUANTITIES = (
 
 # Quantities sampled in log space, traced on logarithmic axes.
 _LOG_TRACES = frozenset({"amplitude_ppt", "coherence_days", "background_amplitude_ppt",
-                         "background_timescale_days", "jitter_ppt"})
+                         "background_timescale_days", "night_offset_ppt",
+                         "jitter_ppt"})
 # A corner axis spanning more than this factor (as it does when a mode at P/2 or 2P is in
 # view) is drawn logarithmic.
 _LOG_AXIS_RATIO = 1.8

@@ -274,6 +274,15 @@ def _data_scales(model: RotationModel):
     return signal, noise, float(np.median(model.flux))
 
 
+def _night_scale(model: RotationModel) -> float:
+    """Starting night-offset scatter: half the scatter of the nightly means (relative flux)."""
+    if model.night is None:
+        return 1e-3
+    means = (np.bincount(model.night, weights=model.flux)
+             / np.bincount(model.night).clip(min=1))
+    return max(0.5 * float(np.std(means)), 1e-5)
+
+
 def _starts(model: RotationModel, period: float, n: int, rng: np.random.Generator):
     signal, noise, level = _data_scales(model)
     base = [(3.0, 0.3), (30.0, 0.6), (1.0, 0.1), (100.0, 0.9)]
@@ -286,7 +295,7 @@ def _starts(model: RotationModel, period: float, n: int, rng: np.random.Generato
             period=period, sigma=signal, coherence_rotations=coh,
             f=f * model.config.max_secondary_fraction, r=0.5,
             background_sigma=0.3 * signal, background_tau=max(period / 3.0, 0.05),
-            jitter=0.5 * noise, mean=level,
+            jitter=0.5 * noise, mean=level, night_offset=_night_scale(model),
         )
         if len(model.background_suffixes) == 2:
             # ordered by damping time: a fast one (granulation) and a slow one (drifts)
@@ -517,7 +526,7 @@ def _fit_backgrounds(null: RotationModel) -> list:
             (0.02, 0.5, 5.0, 0.1))
     starts = []
     for taus in sets:
-        nat = dict(jitter=0.5 * noise, mean=level)
+        nat = dict(jitter=0.5 * noise, mean=level, night_offset=_night_scale(null))
         for suffix, tau in zip(suffixes, taus, strict=False):
             nat[f"background{suffix}_sigma"] = 0.7 * signal
             nat[f"background{suffix}_tau"] = tau
