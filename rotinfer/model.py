@@ -142,6 +142,7 @@ NIGHT_OFFSET_CHOICES = ("off", "auto", "on")
 #: ``is_nightly``: fewest nights, and the longest median night (days), of nightly sampling.
 NIGHTLY_MIN_NIGHTS = 10
 NIGHTLY_MAX_MEDIAN_DAYS = 0.6
+NIGHTLY_MIN_POINTS = 3
 #: The night term's exponent c x (spacing of consecutive night centres): its covariance
 #: between nights is exp(-39) ~ 1e-17 of that within a night, below double precision.
 _NIGHT_DECAY = 39.0
@@ -299,9 +300,11 @@ def night_index(time, gap_hours: float) -> np.ndarray:
 def is_nightly(time, gap_hours: float) -> bool:
     """Whether the sampling is nightly: at least ``NIGHTLY_MIN_NIGHTS`` (10) stretches
     separated by gaps >= ``gap_hours`` whose median length is under
-    ``NIGHTLY_MAX_MEDIAN_DAYS`` (0.6 d, i.e. 14.4 h: a night's dark time), as in
-    ground-based photometry; space-mission sectors and quarters (stretches of days
-    between downlinks) are not.
+    ``NIGHTLY_MAX_MEDIAN_DAYS`` (0.6 d, i.e. 14.4 h: a night's dark time) and whose
+    median number of points is at least ``NIGHTLY_MIN_POINTS`` (3), as in ground-based
+    photometry. Space-mission sectors and quarters (stretches of days between downlinks)
+    are not, nor are daily single measurements (one point per "night": an offset per
+    point would be white noise, which the jitter already is).
     """
     t = np.asarray(time, dtype=float)
     night = night_index(t, gap_hours)
@@ -310,7 +313,8 @@ def is_nightly(time, gap_hours: float) -> bool:
         return False
     first = np.r_[0, np.flatnonzero(np.diff(night)) + 1]
     last = np.r_[first[1:] - 1, t.size - 1]
-    return bool(np.median(t[last] - t[first]) < NIGHTLY_MAX_MEDIAN_DAYS)
+    return bool(np.median(t[last] - t[first]) < NIGHTLY_MAX_MEDIAN_DAYS
+                and np.median(last - first + 1) >= NIGHTLY_MIN_POINTS)
 
 
 def _night_warp(time, night):

@@ -64,6 +64,11 @@ def test_nightly_sampling_is_recognised_and_space_sectors_are_not(rng):
     assert not is_nightly(sector, 6.0)
     # fewer than ten nights is not enough to call the sampling nightly
     assert not is_nightly(_nightly_times(rng, nights=8, loss=0.0), 6.0)
+    # nor is one measurement a day (the Sun's daily radio flux): an offset per point
+    # would only be white noise
+    assert not is_nightly(np.arange(200.0), 6.0)
+    assert is_nightly(np.sort(np.r_[np.arange(200.0), np.arange(200.0) + 0.1,
+                                    np.arange(200.0) + 0.2]), 6.0)
 
 
 @pytest.mark.parametrize("periodic,marginalise", [(True, True), (True, False), (False, True)])
