@@ -13,14 +13,21 @@ Per star and setting: points fitted, CPU and wall seconds, steps, the convergenc
 verdict, the posterior median and its 68 % / 95 % intervals against the true period
 range. Wall and CPU are measured in one process, one fit at a time.
 
+Resumable: every finished fit is kept in ``results/binning_fits.jsonl`` with the
+resolved configuration it ran under (``bench_population._run_key``'s hash of every
+stage's options); a rerun skips the fits (star, max_points, seed) it already has under
+the same options and adds the rest, so a run stopped for time continues in the next
+session even when its work is otherwise lost.
+
 Run:  python benchmarks/bench_binning.py [--n 3] [--points 4000 2000 1000 500 250]
-Writes benchmarks/results/binning.md.
+Writes benchmarks/results/binning.md (all finished fits, also while it runs).
 """
 
 from __future__ import annotations
 
 import argparse
 import datetime
+import json
 import os
 import platform
 import sys
@@ -38,6 +45,9 @@ def main(argv=None):
     ap.add_argument("--points", type=int, nargs="+", default=[4000, 2000, 1000, 500, 250])
     ap.add_argument("--seed", type=int, default=11)
     ap.add_argument("--out", default=str(Path(__file__).parent / "results" / "binning.md"))
+    ap.add_argument("--fits", default=str(Path(__file__).parent / "results"
+                                          / "binning_fits.jsonl"),
+                    help="finished fits, kept between runs (JSON lines)")
     args = ap.parse_args(argv)
 
     from rotinfer import __version__
@@ -52,17 +62,47 @@ def main(argv=None):
             sim = simulate_star(params, pattern, seed=star_seed(args.seed + k, i),
                                 name=f"{name}-{cls}")
             stars.append((cls, sim))
+    kept = _load_fits(Path(args.fits))
     rows = []
     for j, (cls, sim) in enumerate(stars):
         for n in args.points:
-            config = load_run_config(None, overrides={"prepare": {
-                "max_points": n, "min_period": 0.5, "bin_fraction": 0.5}})
+            overrides = {"prepare": {"max_points": n, "min_period": 0.5, "bin_fraction": 0.5}}
+            config = load_run_config(None, overrides=overrides)
+            key = (sim.lc.meta.identifier, n, j, _options_hash(config))
+            if key in kept:
+                rows.append(kept[key])
+                continue
             r = fit_one(sim, config, seed=j)
-            r.update(cls=cls, max_points=n)
+            r.update(cls=cls, max_points=n, seed=j, options=key[3])
             rows.append(r)
+            with open(args.fits, "a") as fh:
+                fh.write(json.dumps(r, default=float) + "\n")
             print({k: r[k] for k in ("name", "max_points", "n_fit", "cpu", "converged",
                                      "period", "truth")}, flush=True)
             _write(rows, args, __version__, done=len(rows), total=len(stars) * len(args.points))
+
+
+def _options_hash(config) -> str:
+    """Hash of every stage's resolved options (what a kept fit must have run under)."""
+    import hashlib
+
+    from rotinfer.config import dataclass_to_dict
+
+    text = json.dumps(dataclass_to_dict(config), sort_keys=True, default=str)
+    return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
+def _load_fits(path: Path) -> dict:
+    """Kept fits by (star, max_points, seed, options hash); an unreadable line is skipped."""
+    kept = {}
+    if path.exists():
+        for line in path.read_text().splitlines():
+            try:
+                r = json.loads(line)
+                kept[(r["name"], r["max_points"], r["seed"], r["options"])] = r
+            except (ValueError, KeyError):
+                continue
+    return kept
 
 
 def _write(rows, args, __version__, *, done, total):
