@@ -23,6 +23,9 @@ The light curve (relative flux, normalised to median 1 per segment by
   the day. Each night's offset is Normal(0, sigma_night^2), integrated out
   analytically at the cost of one celerite column (:meth:`RotationModel.log_likelihood`);
   sigma_night is sampled. "auto" applies it to nightly sampling (:func:`is_nightly`).
+  A background oscillator whose damping time is near the length of a night correlates
+  points within a night and hardly between nights, so it can take up part of the offsets:
+  the two are then only jointly identified, and the period is marginalised over both.
 * white noise — the per-point variance is ``flux_err**2 + jitter**2``. The
   jitter term is always fitted: it matters most when the input had no
   uncertainties and ``prepare`` had to estimate them from the scatter.
