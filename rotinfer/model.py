@@ -487,9 +487,11 @@ class RotationModel:
         object.__setattr__(self, "period_range", (lo, hi))
         if self.night is not None:
             night = np.ascontiguousarray(self.night, dtype=np.int64)
-            if night.shape != t.shape or np.any(np.diff(night) < 0) or night[0] < 0:
+            if night.shape != t.shape or np.any(np.diff(night) < 0):
                 raise InputError(self.source, "night must be non-decreasing night numbers, "
                                  "one per point")
+            # numbered 0, 1, 2, ... (any non-decreasing labels are accepted)
+            night = np.unique(night, return_inverse=True)[1].astype(np.int64).ravel()
             night.setflags(write=False)
             object.__setattr__(self, "night", night)
         self._set_night()

@@ -178,6 +178,8 @@ def test_bad_night_options_name_the_allowed_values():
     with pytest.raises(ConfigError, match="night_offset_ppt"):
         ModelConfig(night_offset_ppt=(1.0, 0.1))
     t = np.arange(20.0)
+    labels = RotationModel(t, np.ones(20), np.full(20, 1e-3), night=np.repeat([3, 7, 8, 20], 5))
+    assert labels.n_nights == 4 and labels.night[-1] == 3
     with pytest.raises(InputError, match="non-decreasing"):
         RotationModel(t, np.ones(20), np.full(20, 1e-3), night=np.arange(20)[::-1])
 
