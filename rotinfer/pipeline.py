@@ -294,7 +294,7 @@ def analyse_star(
 
     summary = summarise(
         posterior, identifier=lc.meta.identifier, config=config.detection,
-        scan=scan_result.to_dict(),
+        scan=scan_result.to_dict(), sampler=config.sampler,
     )
     write_samples(out_dir / "samples.npz", posterior)
     extra = {

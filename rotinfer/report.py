@@ -136,8 +136,10 @@ def _flag_sentences(summary: Mapping[str, Any]) -> list[str]:
             if fap else ""
         out.append("A rotation signal is detected" + extra + ".")
     if summary.get("converged") is False:
+        multiple = lookup(summary, "config.sampler.tau_multiple")
+        length = f"over {multiple:g}" if _finite(multiple) else "over the required number of"
         out.append(
-            "NOT CONVERGED: the chains did not meet the convergence rule (length over 50 "
+            f"NOT CONVERGED: the chains did not meet the convergence rule (length {length} "
             "autocorrelation times and split R-hat across independent ensembles below the "
             "threshold). Intervals may be too narrow or in the wrong place; rerun with a larger "
             "step cap."

@@ -38,6 +38,7 @@ from scipy import special
 
 from .errors import ConfigError
 from .sample import Posterior, relation
+from .sample.settings import SamplerConfig
 
 __all__ = [
     "DetectionConfig",
@@ -52,17 +53,31 @@ __all__ = [
     "weighted_quantile",
 ]
 
-#: The rule behind the single ``converged`` verdict, written into every summary.
-CONVERGENCE_RULE = (
-    "converged = every sampled mode's ensembles (at least two by default) have a post-burn-in "
-    "length above [sampler] tau_multiple (50) integrated autocorrelation times for every "
-    "parameter, ensemble-averaged autocorrelation times that changed between the last two "
-    "checks by less than the larger of [sampler] tau_rtol (5 %) and tau_noise_z (3) standard "
-    "errors of that change (Madras & Sokal 1988), rank-normalised split R-hat across "
-    "ensembles below [sampler] rhat_max "
-    "(1.01, Vehtari et al. 2021) for every parameter, and no stuck walkers; all counted after "
-    "a discarded warm-up of [sampler] warmup_steps steps"
-)
+def convergence_rule(sampler: SamplerConfig | None = None) -> str:
+    """The rule behind the single ``converged`` verdict, with the values it was applied with.
+
+    Parameters
+    ----------
+    sampler : SamplerConfig, optional
+        The ``[sampler]`` settings of the fit (default: the defaults).
+    """
+    s = sampler or SamplerConfig()
+    return (
+        f"converged = every sampled mode's {s.n_ensembles} ensembles have a post-burn-in "
+        f"length above [sampler] tau_multiple ({s.tau_multiple:g}) integrated "
+        "autocorrelation times for every parameter, ensemble-averaged autocorrelation times "
+        "that changed between the last two checks by less than the larger of [sampler] "
+        f"tau_rtol ({100 * s.tau_rtol:g} %) and tau_noise_z ({s.tau_noise_z:g}) standard "
+        "errors of that change (Madras & Sokal 1988), rank-normalised split R-hat across "
+        f"ensembles below [sampler] rhat_max ({s.rhat_max:g}, Vehtari et al. 2021) for every "
+        "parameter, and no stuck walkers; all counted after a discarded warm-up of [sampler] "
+        f"warmup_steps ({s.warmup_steps}) steps, within a cap of max_steps ({s.max_steps}) "
+        "steps per ensemble"
+    )
+
+
+#: The rule with the default settings (:func:`convergence_rule`).
+CONVERGENCE_RULE = convergence_rule()
 
 
 @dataclass(frozen=True)
@@ -527,7 +542,7 @@ def _baselines(scan_dict: dict | None, period: dict, config: DetectionConfig) ->
 
 def summarise(
     posterior: Posterior, *, identifier: str = "star", config: DetectionConfig | None = None,
-    scan: dict | None = None,
+    scan: dict | None = None, sampler: SamplerConfig | None = None,
 ) -> StarSummary:
     """Summarise a posterior from :func:`rotinfer.sample.fit`.
 
@@ -539,6 +554,9 @@ def summarise(
     scan : dict, optional
         ``ScanResult.to_dict()`` of the periodogram stage (baselines and the
         sampling check).
+    sampler : SamplerConfig, optional
+        The sampler settings of the fit, quoted in the convergence rule (default: the
+        defaults).
     """
     config = config or DetectionConfig()
     phys = posterior.physical()
@@ -596,7 +614,7 @@ def summarise(
 
     det = detection(posterior, config)
     diagnostics = {
-        "rule": CONVERGENCE_RULE,
+        "rule": convergence_rule(sampler),
         "converged": posterior.converged,
         "modes": [
             {"period": s.mode.period, **s.run.diagnostics.to_dict()} for s in posterior.sampled

@@ -53,7 +53,7 @@ def _summary(identifier, period, detected=True, converged=True, harmonic=False,
         "seconds": 12.5,
         "seed": 1,
         "version": "test",
-        "config": {"sampler": {"max_steps": 100}},
+        "config": {"sampler": {"max_steps": 100, "tau_multiple": 20.0}},
     }
 
 
@@ -87,6 +87,7 @@ def test_star_page_is_self_contained_and_explains_flags(tmp_path):
     # Units beside every period and amplitude; flags in words.
     assert "11.3 d" in page and "4.2 ppt" in page
     assert "NOT CONVERGED" in page and "Harmonic warning" in page
+    assert "length over 20 autocorrelation times" in page  # the configured rule, not 50
     assert "Sampling warning" not in page
     assert "R-hat 1.2 &gt; 1.01" in page and "split R-hat across ensembles" in page
     # Self-contained: the figure is embedded, and nothing is loaded from the network.

@@ -12,6 +12,7 @@ from scipy import stats
 from rotinfer.errors import ConfigError
 from rotinfer.model import RotationModel
 from rotinfer.sample import EnsembleDiagnostics, EnsembleRun, Laplace, Mode, Posterior, SampledMode
+from rotinfer.sample.settings import SamplerConfig
 from rotinfer.summarise import (
     DetectionConfig,
     detection,
@@ -154,7 +155,12 @@ def test_summary_contents_and_json(rng):
     assert {m["relation"] for m in d["modes"]} == {"P", "P/2"}
     assert d["amplitude_ppt"]["median"] == pytest.approx(2.0, rel=0.05)
     assert d["coherence_time_rotations"]["median"] == pytest.approx(5.0, rel=0.05)
-    assert "rule" in d["diagnostics"]
+    assert "tau_multiple (50)" in d["diagnostics"]["rule"]  # the defaults ...
+    short = SamplerConfig(tau_multiple=20.0, max_steps=1500)
+    rule = summarise(post, identifier="demo", scan=scan, sampler=short).to_dict()[
+        "diagnostics"]["rule"]
+    # ... or the settings the fit ran with, quoted in the rule
+    assert "tau_multiple (20)" in rule and "max_steps (1500)" in rule
 
 
 def test_detection_config_lists_choices():
