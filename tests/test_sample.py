@@ -190,6 +190,34 @@ def test_run_interrupted_during_warmup_resumes_identically(tmp_path):
     assert ck.stored_steps("g/warmup0") == 300
 
 
+def test_run_interrupted_in_the_first_block_of_an_ensemble_resumes_from_the_start(tmp_path):
+    # Stopped while the second ensemble runs its first warm-up block, the first ensemble
+    # has one block stored and the second none: the resume falls back to step 0 for both
+    # (a stored block ahead of the others is dropped) and ends with the same chains.
+    cfg = _small(max_steps=200, tau_multiple=1e4, warmup_steps=300)
+    with _may_stop_early():
+        ref = run_ensembles(gaussian_2d, MU, COV, config=cfg, seed=6)
+    calls = {"n": 0}
+
+    def fragile(x):
+        calls["n"] += 1
+        if calls["n"] > 2 * 12 + 12 * 100 + 600:  # ensemble 1's 1st warm-up block
+            raise KeyboardInterrupt
+        return gaussian_2d(x)
+
+    path = tmp_path / "chains.h5"
+    with pytest.raises(KeyboardInterrupt):
+        run_ensembles(fragile, MU, COV, config=cfg, seed=6,
+                      checkpoint=Checkpoint(path, fingerprint="z"), group="g")
+    ck = Checkpoint(path, fingerprint="z")
+    assert ck.stored_steps("g/warmup0") == 100 and ck.stored_steps("g/warmup1") == 0
+    with _may_stop_early():
+        resumed = run_ensembles(gaussian_2d, MU, COV, config=cfg, seed=6, checkpoint=ck,
+                                group="g")
+    for x, y in zip(ref.chains, resumed.chains, strict=True):
+        assert np.array_equal(x, y)
+
+
 def test_adapted_proposal_follows_the_warmup_draws_not_the_laplace_guess():
     # Started with a Laplace covariance 100 times too small in one direction, the
     # sampler must still recover the analytic variance (within 5 Monte Carlo standard

@@ -150,12 +150,13 @@ class Checkpoint:
             return int(f[group].attrs.get("n_steps", 0)) if group in f else 0
 
     def truncate(self, group: str, n_steps: int) -> None:
-        """Forget everything of ``group`` after step ``n_steps`` (which must be a block end)."""
+        """Forget everything of ``group`` after step ``n_steps`` (a block end, or 0: all of it,
+        as when another ensemble was stopped inside its first block)."""
         with h5py.File(self.path, "a") as f:
             g = f[group]
             ends = np.array(g["block_end"][...])
             keep = int(np.sum(ends <= n_steps))
-            if keep == 0 or ends[keep - 1] != n_steps:
+            if n_steps != 0 and (keep == 0 or ends[keep - 1] != n_steps):
                 raise ValueError(f"{group}: step {n_steps} is not the end of a stored block")
             g.attrs["n_steps"] = int(n_steps)
             for name in ("block_end", "accepted", "rng_keys", "rng_meta"):
