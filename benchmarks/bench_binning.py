@@ -14,7 +14,7 @@ verdict, the posterior median and its 68 % / 95 % intervals against the true per
 range. Wall and CPU are measured in one process, one fit at a time.
 
 Resumable: every finished fit is kept in ``results/binning_fits.jsonl`` with the
-resolved configuration it ran under (``bench_population._run_key``'s hash of every
+resolved configuration it ran under (``bench_population.options_hash`` of every
 stage's options); a rerun skips the fits (star, max_points, seed) it already has under
 the same options and adds the rest, so a run stopped for time continues in the next
 session even when its work is otherwise lost.
@@ -35,7 +35,7 @@ from pathlib import Path
 
 import numpy as np
 from bench_fit import fit_one, make_pattern
-from bench_population import _overlaps, _within
+from bench_population import _overlaps, _within, options_hash
 
 
 def main(argv=None):
@@ -68,7 +68,7 @@ def main(argv=None):
         for n in args.points:
             overrides = {"prepare": {"max_points": n, "min_period": 0.5, "bin_fraction": 0.5}}
             config = load_run_config(None, overrides=overrides)
-            key = (sim.lc.meta.identifier, n, j, _options_hash(config))
+            key = (sim.lc.meta.identifier, n, j, options_hash(config))
             if key in kept:
                 rows.append(kept[key])
                 continue
@@ -80,16 +80,6 @@ def main(argv=None):
             print({k: r[k] for k in ("name", "max_points", "n_fit", "cpu", "converged",
                                      "period", "truth")}, flush=True)
             _write(rows, args, __version__, done=len(rows), total=len(stars) * len(args.points))
-
-
-def _options_hash(config) -> str:
-    """Hash of every stage's resolved options (what a kept fit must have run under)."""
-    import hashlib
-
-    from rotinfer.config import dataclass_to_dict
-
-    text = json.dumps(dataclass_to_dict(config), sort_keys=True, default=str)
-    return hashlib.sha256(text.encode()).hexdigest()[:16]
 
 
 def _load_fits(path: Path) -> dict:

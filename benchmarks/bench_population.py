@@ -166,33 +166,41 @@ REPORT_ONLY = (("periodogram", "window_threshold"), ("periodogram", "window_max_
 NIGHT_OPTIONS = ("night_offsets", "night_offset_ppt", "night_gap_hours")
 
 
+def options_hash(cfg) -> str:
+    """Hash of the resolved options of a ``RunConfig`` that shape the fits and the calls.
+
+    Not the wording of the false-alarm statement; not the options of the sampling check,
+    which only adds a flag to the summary (dropped, not blanked, so that stars fitted
+    before the check existed still match); not the options of a model term that is
+    switched off (the fit is then the same as before the term existed).
+    """
+    import hashlib
+    import json
+
+    from rotinfer.config import dataclass_to_dict
+
+    detection = dataclasses.replace(cfg.detection, false_alarm_rate=None,
+                                    false_alarm_upper_95=None, calibration="")
+    options = dataclass_to_dict(dataclasses.replace(cfg, detection=detection))
+    for table, key in REPORT_ONLY:
+        options[table].pop(key, None)
+    if options["model"].get("night_offsets") == "off":
+        for key in NIGHT_OPTIONS:
+            options["model"].pop(key, None)
+    text = json.dumps(options, sort_keys=True, default=str)
+    return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
 def _run_key(seed: int, per_class: int, config: str) -> dict:
     """What must match for stars of an earlier run to be carried into this one: the seed,
     the stars per class, the configuration file and its resolved options (defaults
     included)."""
     import hashlib
-    import json
 
-    from rotinfer.config import dataclass_to_dict
     from rotinfer.pipeline import load_run_config
 
     digest = hashlib.sha256(Path(config).read_bytes()).hexdigest()[:16]
-    cfg = load_run_config(config)
-    # what shapes the fits and the calls; not the wording of the false-alarm statement ...
-    detection = dataclasses.replace(cfg.detection, false_alarm_rate=None,
-                                    false_alarm_upper_95=None, calibration="")
-    options = dataclass_to_dict(dataclasses.replace(cfg, detection=detection))
-    # ... nor the options of the sampling check, which only adds a flag to the summary
-    # (dropped, not blanked, so that stars fitted before the check existed still match)
-    for table, key in REPORT_ONLY:
-        options[table].pop(key, None)
-    # ... nor the options of a model term that is switched off (the fit is then the same
-    # as before the term existed: dropped for the same reason)
-    if options["model"].get("night_offsets") == "off":
-        for key in NIGHT_OPTIONS:
-            options["model"].pop(key, None)
-    text = json.dumps(options, sort_keys=True, default=str)
-    resolved = hashlib.sha256(text.encode()).hexdigest()[:16]
+    resolved = options_hash(load_run_config(config))
     return {"seed": int(seed), "per_class": int(per_class), "config_sha256": digest,
             "resolved_config": resolved}
 
