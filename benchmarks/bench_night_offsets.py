@@ -34,6 +34,7 @@ from pathlib import Path
 
 import numpy as np
 from astropy.table import Table
+from bench_population import _within
 
 HERE = Path(__file__).resolve().parent
 SEED = 20261203
@@ -198,8 +199,8 @@ def _star_lines(stars: Table, work: Path) -> list[str]:
         p_off = float(old["period"]) if old is not None else float("nan")
         if spotted:
             tally["periodic"] += 1
-            tally["off"] += bool(0.9 * lo <= p_off <= 1.1 * hi)
-            tally["on"] += bool(0.9 * lo <= float(r["period"]) <= 1.1 * hi)
+            tally["off"] += bool(_within(p_off, lo, hi))
+            tally["on"] += bool(_within(float(r["period"]), lo, hi))
         else:
             tally["nulls"] += 1
             tally["false off"] += bool(old is not None and old["detected"])

@@ -314,10 +314,16 @@ def is_nightly(time, gap_hours: float) -> bool:
     n = int(night[-1]) + 1 if t.size else 0
     if n < NIGHTLY_MIN_NIGHTS:
         return False
-    first = np.r_[0, np.flatnonzero(np.diff(night)) + 1]
-    last = np.r_[first[1:] - 1, t.size - 1]
+    first, last = _night_ends(night)
     return bool(np.median(t[last] - t[first]) < NIGHTLY_MAX_MEDIAN_DAYS
                 and np.median(last - first + 1) >= NIGHTLY_MIN_POINTS)
+
+
+def _night_ends(night):
+    """Indices of the first and last point of each night (``night`` non-decreasing)."""
+    first = np.r_[0, np.flatnonzero(np.diff(night)) + 1]
+    last = np.r_[first[1:] - 1, night.size - 1]
+    return first, last
 
 
 def _night_warp(time, night):
@@ -329,8 +335,7 @@ def _night_warp(time, night):
     night and at most exp(-39) sigma^2 between nights, c being 39 over the smallest
     spacing of consecutive night centres.
     """
-    first = np.r_[0, np.flatnonzero(np.diff(night)) + 1]
-    last = np.r_[first[1:] - 1, time.size - 1]
+    first, last = _night_ends(night)
     centre = 0.5 * (time[first] + time[last])
     spacing = np.diff(centre)
     if spacing.size == 0 or not np.all(spacing > 0):

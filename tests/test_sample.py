@@ -127,35 +127,47 @@ def test_resume_from_checkpoint_continues_identically(tmp_path):
         assert np.array_equal(x, y)
 
 
+def _interrupt_after(calls_allowed, cfg, seed, path, fingerprint):
+    """The uninterrupted chains, and the checkpoint of the same run stopped by a
+    KeyboardInterrupt from inside the target after ``calls_allowed`` evaluations."""
+    with _may_stop_early():
+        ref = run_ensembles(gaussian_2d, MU, COV, config=cfg, seed=seed)
+    calls = {"n": 0}
+
+    def fragile(x):
+        calls["n"] += 1
+        if calls["n"] > calls_allowed:
+            raise KeyboardInterrupt
+        return gaussian_2d(x)
+
+    with pytest.raises(KeyboardInterrupt):
+        run_ensembles(fragile, MU, COV, config=cfg, seed=seed,
+                      checkpoint=Checkpoint(path, fingerprint=fingerprint), group="g")
+    return ref, Checkpoint(path, fingerprint=fingerprint)
+
+
+def _resumes_to(ref, ck, cfg, seed):
+    """Resume from ``ck`` and require the chains of the uninterrupted run, exactly."""
+    with _may_stop_early():
+        resumed = run_ensembles(gaussian_2d, MU, COV, config=cfg, seed=seed, checkpoint=ck,
+                                group="g")
+    for x, y in zip(ref.chains, resumed.chains, strict=True):
+        assert np.array_equal(x, y)
+
+
 def test_interrupted_run_resumes_identically(tmp_path):
     # A run killed part-way (here: KeyboardInterrupt from inside the target after some
     # calls) resumes from the last complete block and ends with the same chains as an
     # uninterrupted run (an unreachable chain length keeps both from stopping early).
     cfg = _small(max_steps=500, tau_multiple=1e4)
     warmup_calls = 2 * 12 * cfg.warmup_steps
-    with _may_stop_early():
-        ref = run_ensembles(gaussian_2d, MU, COV, config=cfg, seed=8)
-    calls = {"n": 0}
-
-    def fragile(x):
-        calls["n"] += 1
-        if calls["n"] > warmup_calls + 12 * 100 * 3 + 500:  # 2nd ensemble's 2nd block
-            raise KeyboardInterrupt
-        return gaussian_2d(x)
-
-    path = tmp_path / "chains.h5"
-    with pytest.raises(KeyboardInterrupt):
-        run_ensembles(fragile, MU, COV, config=cfg, seed=8,
-                      checkpoint=Checkpoint(path, fingerprint="f"), group="g")
-    ck = Checkpoint(path, fingerprint="f")
+    # stopped in the 2nd ensemble's 2nd block
+    ref, ck = _interrupt_after(warmup_calls + 12 * 100 * 3 + 500, cfg, 8,
+                               tmp_path / "chains.h5", "f")
     assert ck.resumed
     assert ck.stored_steps("g/ensemble0") == 200  # one block ahead of ensemble 1
     assert ck.stored_steps("g/ensemble1") == 100
-    with _may_stop_early():
-        resumed = run_ensembles(gaussian_2d, MU, COV, config=cfg, seed=8, checkpoint=ck,
-                                group="g")
-    for x, y in zip(ref.chains, resumed.chains, strict=True):
-        assert np.array_equal(x, y)
+    _resumes_to(ref, ck, cfg, 8)
     assert ck.stored_steps("g/ensemble0") == ck.stored_steps("g/ensemble1") == 500
 
 
@@ -164,29 +176,13 @@ def test_run_interrupted_during_warmup_resumes_identically(tmp_path):
     # checkpointed too: a run stopped inside it resumes to the same chains, and the
     # returned chains hold only the draws after the warm-up.
     cfg = _small(max_steps=200, tau_multiple=1e4, warmup_steps=300)
-    with _may_stop_early():
-        ref = run_ensembles(gaussian_2d, MU, COV, config=cfg, seed=4)
+    # stopped in ensemble 0's 2nd warm-up block
+    ref, ck = _interrupt_after(2 * 12 + 12 * 100 * 2 + 600, cfg, 4, tmp_path / "chains.h5",
+                               "w")
     assert ref.chains[0].shape[0] == 200
-    calls = {"n": 0}
-
-    def fragile(x):
-        calls["n"] += 1
-        if calls["n"] > 2 * 12 + 12 * 100 * 2 + 600:  # ensemble 0's 2nd warm-up block
-            raise KeyboardInterrupt
-        return gaussian_2d(x)
-
-    path = tmp_path / "chains.h5"
-    with pytest.raises(KeyboardInterrupt):
-        run_ensembles(fragile, MU, COV, config=cfg, seed=4,
-                      checkpoint=Checkpoint(path, fingerprint="w"), group="g")
-    ck = Checkpoint(path, fingerprint="w")
     assert ck.stored_steps("g/warmup0") == ck.stored_steps("g/warmup1") == 100
     assert ck.stored_steps("g/ensemble0") == 0
-    with _may_stop_early():
-        resumed = run_ensembles(gaussian_2d, MU, COV, config=cfg, seed=4, checkpoint=ck,
-                                group="g")
-    for x, y in zip(ref.chains, resumed.chains, strict=True):
-        assert np.array_equal(x, y)
+    _resumes_to(ref, ck, cfg, 4)
     assert ck.stored_steps("g/warmup0") == 300
 
 
@@ -195,27 +191,10 @@ def test_run_interrupted_in_the_first_block_of_an_ensemble_resumes_from_the_star
     # has one block stored and the second none: the resume falls back to step 0 for both
     # (a stored block ahead of the others is dropped) and ends with the same chains.
     cfg = _small(max_steps=200, tau_multiple=1e4, warmup_steps=300)
-    with _may_stop_early():
-        ref = run_ensembles(gaussian_2d, MU, COV, config=cfg, seed=6)
-    calls = {"n": 0}
-
-    def fragile(x):
-        calls["n"] += 1
-        if calls["n"] > 2 * 12 + 12 * 100 + 600:  # ensemble 1's 1st warm-up block
-            raise KeyboardInterrupt
-        return gaussian_2d(x)
-
-    path = tmp_path / "chains.h5"
-    with pytest.raises(KeyboardInterrupt):
-        run_ensembles(fragile, MU, COV, config=cfg, seed=6,
-                      checkpoint=Checkpoint(path, fingerprint="z"), group="g")
-    ck = Checkpoint(path, fingerprint="z")
+    # stopped in ensemble 1's 1st warm-up block
+    ref, ck = _interrupt_after(2 * 12 + 12 * 100 + 600, cfg, 6, tmp_path / "chains.h5", "z")
     assert ck.stored_steps("g/warmup0") == 100 and ck.stored_steps("g/warmup1") == 0
-    with _may_stop_early():
-        resumed = run_ensembles(gaussian_2d, MU, COV, config=cfg, seed=6, checkpoint=ck,
-                                group="g")
-    for x, y in zip(ref.chains, resumed.chains, strict=True):
-        assert np.array_equal(x, y)
+    _resumes_to(ref, ck, cfg, 6)
 
 
 def test_adapted_proposal_follows_the_warmup_draws_not_the_laplace_guess():
