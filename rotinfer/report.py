@@ -109,6 +109,13 @@ def _interval(iv: Any, unit: str) -> str:
     return "—"
 
 
+def _pm(values: Any, unit: str = "d") -> str:
+    """'± a, ± b d' for a list of standard errors (two significant digits)."""
+    if isinstance(values, list | tuple) and values and all(_finite(v) for v in values):
+        return ", ".join(f"± {_fmt(v, 2)}" for v in values) + f" {unit}"
+    return "—"
+
+
 def _data_uri(path: Path) -> str:
     return "data:image/png;base64," + base64.b64encode(path.read_bytes()).decode("ascii")
 
@@ -296,6 +303,12 @@ def write_star_page(folder: str | os.PathLike[str]) -> Path:
         if isinstance(region, list) and region:
             pieces = region if isinstance(region[0], list) else [region]
             extra.append([label, " ∪ ".join(_interval(iv, "d") for iv in pieces)])
+    mcse = lookup(s, "period.mcse")
+    if isinstance(mcse, Mapping) and _finite(mcse.get("median")):
+        extra.append([
+            "Period, Monte Carlo standard error (how far another seed would move each number)",
+            f"median {_pm([mcse.get('median')])}; 68 % ends {_pm(mcse.get('interval_68'))}; "
+            f"95 % ends {_pm(mcse.get('interval_95'))}"])
     if _finite(lookup(s, "period.map")):
         extra.append(["Period, maximum a posteriori", f"{_fmt(lookup(s, 'period.map'))} d"])
     if extra:

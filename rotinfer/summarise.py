@@ -9,6 +9,9 @@ Conventions
   holding the stated mass, from a weighted histogram of ln P with
   Freedman-Diaconis-width bins (Hyndman 1996); returned as a list of
   [lo, hi] day intervals, several when the posterior is multimodal.
+* Monte Carlo standard error (``period.mcse``, days): how far the median and the
+  interval ends would move in a rerun with another seed, from the chains' effective
+  sample sizes and the mode probabilities' standard errors (Vehtari et al. 2021).
 * MAP: the highest posterior point found by the optimiser or the sampler.
 * Sampling check: the posterior probability of periods within
   ``[detection] sampling_tolerance`` of a periodicity of the sampling found by the
@@ -23,6 +26,8 @@ References
 ----------
 Hyndman, R. J. 1996, The American Statistician 50, 120 (highest-density regions).
 Deeming, T. J. 1975, Ap&SS 36, 137 (spectral window and aliases).
+Vehtari, A. et al. 2021, Bayesian Analysis 16, 667 (effective sample size, MCSE of
+quantiles).
 Kass, R. E. & Raftery, A. E. 1995, JASA 90, 773 (Bayes factors; BIC as an approximation).
 Schwarz, G. 1978, Ann. Stat. 6, 461 (BIC).
 """
@@ -38,6 +43,7 @@ from scipy import special
 
 from .errors import ConfigError
 from .sample import Posterior, relation
+from .sample.mcse import posterior_mcse
 from .sample.settings import SamplerConfig
 
 __all__ = [
@@ -217,8 +223,31 @@ def hdr_intervals(values, mass: float, weights=None, *, log: bool = True) -> lis
     return intervals
 
 
+#: Probabilities of the reported quantiles: 95 % end, 68 % end, median, 68 % end, 95 % end.
+_QUANTILES = (0.025, 0.16, 0.5, 0.84, 0.975)
+
+
+def period_mcse(posterior: Posterior, period: dict) -> dict:
+    """Monte Carlo standard errors (days) of the reported period median and interval ends.
+
+    From the full post-burn-in chains of every sampled mode and the standard errors of the
+    modes' probabilities (:func:`rotinfer.sample.mcse.posterior_mcse`; Vehtari et al. 2021,
+    Sect. 4.3). ``largest`` is the largest of the five.
+    """
+    est = [period["interval_95"][0], period["interval_68"][0], period["median"],
+           period["interval_68"][1], period["interval_95"][1]]
+    m = posterior_mcse(posterior, "log_period", _QUANTILES, est)
+    return {
+        "unit": "d",
+        "median": _num(m[2]),
+        "interval_68": [_num(m[1]), _num(m[3])],
+        "interval_95": [_num(m[0]), _num(m[4])],
+        "largest": _num(np.nanmax(m)) if np.any(np.isfinite(m)) else None,
+    }
+
+
 def _describe(values, weights, map_value, unit: str) -> dict:
-    q = weighted_quantile(values, [0.025, 0.16, 0.5, 0.84, 0.975], weights)
+    q = weighted_quantile(values, _QUANTILES, weights)
     return {
         "unit": unit,
         "median": float(q[2]),
@@ -563,6 +592,7 @@ def summarise(
     w = posterior.weights
     map_phys = posterior.model.physical(posterior.map_theta[None, :])
     period = _describe(phys["period"], w, map_phys["period"][0], "d")
+    period["mcse"] = period_mcse(posterior, period)
     period["hdr_68"] = hdr_intervals(phys["period"], 0.68, w)
     period["hdr_95"] = hdr_intervals(phys["period"], 0.95, w)
     amplitude = _describe(phys["amplitude_ppt"], w, map_phys["amplitude_ppt"][0], "ppt")

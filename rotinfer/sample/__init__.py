@@ -3,6 +3,7 @@
 * :mod:`~rotinfer.sample.optimise` — modes of the posterior and their Laplace evidence;
 * :mod:`~rotinfer.sample.ensemble` — independent emcee ensembles run to convergence;
 * :mod:`~rotinfer.sample.convergence` — autocorrelation time, split R-hat, the verdict;
+* :mod:`~rotinfer.sample.mcse` — Monte Carlo standard errors of reported quantiles;
 * :mod:`~rotinfer.sample.checkpoint` — the per-star HDF5 file of chains;
 * :mod:`~rotinfer.sample.posterior` — :func:`fit`, which ties them together.
 """

@@ -1,0 +1,135 @@
+"""Monte Carlo standard errors (rotinfer.sample.mcse) against known answers.
+
+References used below:
+
+* AR(1) chains x_t = rho x_{t-1} + e_t have the integrated autocorrelation time
+  (1 + rho) / (1 - rho) (common practice; e.g. Sokal 1997, "Monte Carlo methods in
+  statistical mechanics", eq. 2.20 for an exponential autocorrelation, from memory);
+* the asymptotic standard deviation of a sample quantile of N independent draws is
+  sqrt(q (1 - q) / N) / f(x_q) (common practice; the normal approximation of the order
+  statistics, e.g. Stuart & Ord, Kendall's Advanced Theory of Statistics, from memory),
+  with f and x_q from SciPy's normal distribution;
+* a standard error is the spread of the estimate over independent replicates: the
+  replicates below are generated with SciPy's ``lfilter`` (AR(1)) and NumPy, and their
+  robust spread (half the 16-84 % range) is the reference.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from scipy import signal, special, stats
+from test_summarise import _posterior
+
+from rotinfer.sample.mcse import (
+    ModeDraws,
+    ess,
+    mixture_quantiles,
+    posterior_mcse,
+    quantile_mcse,
+)
+from rotinfer.summarise import summarise
+
+
+def _ar1(rng, shape, rho):
+    """Stationary AR(1) rows with unit marginal variance (SciPy's lfilter)."""
+    e = rng.standard_normal(shape) * math.sqrt(1 - rho**2)
+    e[..., 0] = rng.standard_normal(shape[:-1])  # start in the stationary distribution
+    return signal.lfilter([1.0], [1.0, -rho], e, axis=-1)
+
+
+def _spread(x):
+    lo, hi = np.quantile(x, [0.16, 0.84], axis=0)
+    return 0.5 * (hi - lo)
+
+
+def test_ess_of_independent_draws_is_their_number(rng):
+    x = rng.standard_normal((8, 5000))
+    assert ess(x) == pytest.approx(x.size, rel=0.05)
+
+
+@pytest.mark.parametrize("rho", [0.5, 0.9])
+def test_ess_of_ar1_chains_matches_the_analytic_autocorrelation_time(rng, rho):
+    # Reference: tau = (1 + rho) / (1 - rho) for AR(1) (see the module docstring).
+    x = _ar1(rng, (8, 20000), rho)
+    assert x.size / ess(x) == pytest.approx((1 + rho) / (1 - rho), rel=0.08)
+
+
+def test_ess_counts_chains_that_disagree(rng):
+    # Chains offset from each other by more than their own spread: the pooled variance
+    # sees it, an estimate from each chain's own mean would not.
+    x = rng.standard_normal((4, 2000)) + np.array([-3.0, -1.0, 1.0, 3.0])[:, None]
+    assert ess(x) < 0.05 * x.size
+    assert ess(np.full((4, 100), 2.5)) == 400  # nothing to estimate: all draws equal
+    assert math.isnan(ess(np.zeros((4, 3))))
+
+
+@pytest.mark.parametrize("q", [0.025, 0.16, 0.5, 0.975])
+def test_quantile_mcse_of_independent_draws_matches_the_asymptotic_formula(rng, q):
+    n = 10000
+    draws = rng.standard_normal((200, 4, n // 4))
+    mcse = [quantile_mcse([ModeDraws(d, 1.0)], q)[0] for d in draws]
+    expected = math.sqrt(q * (1 - q) / n) / stats.norm.pdf(stats.norm.ppf(q))
+    assert np.median(mcse) == pytest.approx(expected, rel=0.08)
+
+
+def test_quantile_mcse_of_ar1_chains_matches_the_replicate_spread(rng):
+    q = np.array([0.025, 0.16, 0.5, 0.975])
+    reps = _ar1(rng, (300, 4, 2000), 0.8)
+    estimates = np.array([np.quantile(r, q) for r in reps])
+    mcse = np.array([quantile_mcse([ModeDraws(r, 1.0)], q) for r in reps])
+    ratio = np.median(mcse, axis=0) / _spread(estimates)
+    assert np.all((ratio > 0.85) & (ratio < 1.15)), ratio
+    # The median's error is sqrt(tau_I) times the independent-draw one, tau_I the
+    # autocorrelation time of the indicator x <= 0, whose lag-k correlation is
+    # (2 / pi) arcsin(rho^k) for a Gaussian AR(1) (Sheppard's orthant probability of a
+    # bivariate normal, common practice): tau_I = 6.39 at rho = 0.8, not tau = 9.
+    k = np.arange(1, 500)
+    tau_indicator = 1 + 2 * np.sum(2 / np.pi * np.arcsin(0.8**k))
+    iid = math.sqrt(0.25 / reps[0].size) / stats.norm.pdf(0.0)
+    assert np.median(mcse[:, 2]) / iid == pytest.approx(math.sqrt(tau_indicator), rel=0.08)
+
+
+def test_mixture_mcse_includes_the_uncertainty_of_the_mode_probabilities(rng):
+    # Two modes, 95 % and 5 %, whose ln evidences carry standard errors 0.02 and 0.1; each
+    # replicate redraws the chains and the probabilities. The 90 % and 97.5 % quantiles
+    # fall in the minor mode, where the probability's error dominates.
+    q = np.array([0.5, 0.9, 0.975])
+    se = np.array([0.02, 0.1])
+    estimates, with_se, without = [], [], []
+    for _ in range(300):
+        a = rng.standard_normal((4, 2000))
+        b = 10.0 + rng.standard_normal((4, 500))
+        log_z = np.log([0.95, 0.05]) + se * rng.standard_normal(2)
+        p = np.exp(log_z - special.logsumexp(log_z))
+        estimates.append(mixture_quantiles([ModeDraws(a, p[0]), ModeDraws(b, p[1])], q))
+        with_se.append(quantile_mcse([ModeDraws(a, p[0], se[0]), ModeDraws(b, p[1], se[1])], q))
+        without.append(quantile_mcse([ModeDraws(a, p[0]), ModeDraws(b, p[1])], q))
+    spread = _spread(np.array(estimates))
+    ratio = np.median(with_se, axis=0) / spread  # over seeds 0-7: 0.91-1.13
+    assert np.all((ratio > 0.85) & (ratio < 1.2)), ratio
+    # leaving the probabilities' errors out understates the tail quantiles' error badly
+    # (over seeds 0-7: 0.44-0.52 of the spread at 90 %, 0.20-0.25 at 97.5 %)
+    low = np.median(without, axis=0) / spread
+    assert low[1] < 0.65 and low[2] < 0.35, low
+
+
+def test_period_mcse_in_the_summary(rng):
+    # One mode of independent draws, ln P ~ N(ln 3, 0.02^2) (tests/test_summarise.py):
+    # the median's MCSE is 3 x 0.02 x sqrt(pi / 2 / N) by the delta method and the
+    # asymptotic formula above.
+    post = _posterior(rng, [(3.0, 1.0)])
+    block = summarise(post, identifier="demo").to_dict()["period"]["mcse"]
+    n = len(post.samples)
+    assert block["unit"] == "d"
+    assert block["median"] == pytest.approx(3.0 * 0.02 * math.sqrt(math.pi / 2 / n), rel=0.25)
+    ends = block["interval_68"] + block["interval_95"]
+    assert block["largest"] == max(ends + [block["median"]])
+    assert all(0 < v < 0.05 for v in ends)  # tails are less precise than the median ...
+    assert block["interval_95"][0] > block["median"]  # ... the 2.5 % end most of all
+    # the posterior's own probabilities and standard errors are used
+    two = _posterior(rng, [(3.0, 0.9), (1.5, 0.1)])
+    m = posterior_mcse(two, "log_period", [0.5])
+    assert 0 < m[0] < 0.05
