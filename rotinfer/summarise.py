@@ -639,6 +639,7 @@ def summarise(
             "probability": s.probability if s is not None else None,
             "basin": list(s.basin) if s is not None else None,
             "log_evidence_importance": _num(s.log_evidence) if s is not None else None,
+            "log_evidence_importance_se": _num(s.log_evidence_se) if s is not None else None,
             "importance_ess": _num(s.importance_ess) if s is not None else None,
         })
 

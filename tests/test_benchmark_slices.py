@@ -71,6 +71,15 @@ def test_injection_recovery_slice(tmp_path):
     assert not null["detected"]
     assert (tmp_path / "population_completeness.png").stat().st_size > 0
 
+    # The Monte Carlo precision benchmark recomputes each star's MCSE from its stored
+    # chains: it must equal what the fit reported in summary.json (same draws, same rule).
+    mcse = _load("bench_mcse")
+    assert mcse.main(["--work", str(tmp_path / "work"), "--out", str(tmp_path / "m.md")]) == 0
+    assert "| easy | 1 |" in (tmp_path / "m.md").read_text()
+    for folder in (tmp_path / "work" / "survey" / "stars").glob("*-*"):
+        r = mcse.star_mcse(folder)
+        assert float(np.max(r["mcse"])) == pytest.approx(r["stored"], rel=1e-9)
+
     # A later run (fresh work folder, same seed, size and configuration) carries the four
     # finished stars instead of fitting them again, and reports the same table.
     rc = bench.main([*common, "--work", str(tmp_path / "later"), "--commit", "def5678"])

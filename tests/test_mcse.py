@@ -23,6 +23,7 @@ import pytest
 from scipy import signal, special, stats
 from test_summarise import _posterior
 
+from rotinfer.sample import importance_log_evidence
 from rotinfer.sample.mcse import (
     ModeDraws,
     ess,
@@ -133,3 +134,15 @@ def test_period_mcse_in_the_summary(rng):
     two = _posterior(rng, [(3.0, 0.9), (1.5, 0.1)])
     m = posterior_mcse(two, "log_period", [0.5])
     assert 0 < m[0] < 0.05
+
+
+def test_log_evidence_error_follows_from_the_kish_sample_size(rng):
+    # Exact identity used by benchmarks/bench_mcse.py for summaries that predate the stored
+    # error: the delta-method error std(w) / (sqrt(n) mean(w)) of an importance estimate
+    # equals sqrt(1 / ESS - 1 / n) with ESS = (sum w)^2 / sum w^2 (Kish 1965).
+    def log_prob(x):
+        return float(-0.5 * np.sum((x / np.array([1.0, 3.0])) ** 2) - 0.1 * x[0] ** 4)
+
+    draws = rng.standard_normal((500, 2)) * np.array([1.0, 3.0])
+    _, se, kish = importance_log_evidence(log_prob, draws, n=400, rng=rng)
+    assert se == pytest.approx(math.sqrt(1 / kish - 1 / 400), rel=1e-9)
