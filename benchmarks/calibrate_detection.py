@@ -17,7 +17,8 @@ Run:  python benchmarks/calibrate_detection.py --n 200 --seed 1 [--workers 2] [-
 Writes benchmarks/results/detection.md and benchmarks/results/detection_nulls.json.
 
 Re-check after a change to the model or the optimiser, without the full run:
-      python benchmarks/calibrate_detection.py --recheck K [--workers 2]
+      python benchmarks/calibrate_detection.py --recheck K [--workers 2] [--pattern ground]
+      [--config F] [--out F.md]
 refits the K null stars of results/detection_nulls.json with the largest statistic (the
 ones a change could push over the threshold) with the current code and writes
 results/detection_recheck.md: old and new value per star, and whether any crosses.
@@ -102,7 +103,8 @@ def recheck(args):
     cfg = load_run_config(args.config)
     stat = cfg.detection.statistic
     saved = json.loads((RESULTS / "detection_nulls.json").read_text())
-    old = {r["index"]: r for r in saved["rows"] if r[stat] is not None}
+    old = {r["index"]: r for r in saved["rows"] if r[stat] is not None
+           and (args.pattern is None or r["pattern"] == args.pattern)}
     picked = sorted(old, key=lambda i: -old[i][stat])[: args.recheck]
     jobs = [(i, saved["seed"], args.config, saved["population"], args.max_points)
             for i in picked]
@@ -124,7 +126,8 @@ def recheck(args):
         f"{max(args.workers, 1)} worker(s)",
         f"- versions: rotinfer {__version__}, numpy {np.__version__}, Python "
         f"{sys.version.split()[0]}; configuration {args.config or 'defaults'}",
-        f"- stars: the {len(picked)} of the {len(old)} nulls in results/detection_nulls.json "
+        f"- stars: the {len(picked)} of the {len(old)} "
+        f"{args.pattern + ' ' if args.pattern else ''}nulls in results/detection_nulls.json "
         f"(seed {saved['seed']}) with the largest {stat} (down to {lowest:.1f}); the others "
         f"were further below the threshold ({thr:g})",
         "",
@@ -142,7 +145,7 @@ def recheck(args):
     lines += ["", f"Above the threshold ({thr:g}): {above_old} stored, {above_new} now; "
               f"median change {np.median(shifts):+.1f}, largest {max(shifts, key=abs):+.1f}."]
     text = "\n".join(lines) + "\n"
-    (RESULTS / "detection_recheck.md").write_text(text)
+    Path(args.out or RESULTS / "detection_recheck.md").write_text(text)
     print(text)
 
 
@@ -165,6 +168,11 @@ def main(argv=None):
     ap.add_argument("--recheck", type=int, default=None, metavar="K",
                     help="refit the K nulls of results/detection_nulls.json with the largest "
                          "statistic and compare (writes results/detection_recheck.md)")
+    ap.add_argument("--pattern", default=None, choices=("space", "ground"),
+                    help="with --recheck: only the nulls of this observing pattern")
+    ap.add_argument("--out", default=None,
+                    help="with --recheck: the table to write (default "
+                         "results/detection_recheck.md)")
     args = ap.parse_args(argv)
     if args.recheck:
         return recheck(args)
