@@ -35,13 +35,18 @@ import numpy as np
 
 HERE = Path(__file__).resolve().parent
 CLASSES = ("easy", "moderate", "hard", "null")
-QUANTILES = (0.025, 0.16, 0.5, 0.84, 0.975)
 THRESHOLD = 0.1
 
 
 def star_mcse(folder: Path) -> dict:
     """MCSEs (days) of the five reported period numbers of one result folder."""
-    from rotinfer.sample.mcse import ModeDraws, quantile_mcse
+    from rotinfer.sample.mcse import (
+        REPORTED,
+        REPORTED_NAMES,
+        ModeDraws,
+        quantile_mcse,
+        relative_precision,
+    )
 
     summary = json.loads((folder / "summary.json").read_text())
     n_draws = int(summary["config"]["sampler"]["importance_draws"])
@@ -67,19 +72,13 @@ def star_mcse(folder: Path) -> dict:
     p = summary["period"]
     est = [p["interval_95"][0], p["interval_68"][0], p["median"], p["interval_68"][1],
            p["interval_95"][1]]
-    mcse = quantile_mcse(modes, QUANTILES, est)
-    # each number's MCSE against its own scale: the median's against the posterior's sigma
-    # (half the 68 % interval), an interval end's against its distance from the median
-    scale = np.abs(np.asarray(est) - p["median"])
-    scale[2] = 0.5 * (p["interval_68"][1] - p["interval_68"][0])
-    with np.errstate(divide="ignore", invalid="ignore"):
-        rel = np.where(scale > 0, mcse / scale, np.inf)
+    mcse = quantile_mcse(modes, REPORTED, est)
+    rel = relative_precision(est, mcse)
     reasons = [r for d in diag for r in d["reasons"]]
     return dict(
         star=folder.name, cls=folder.name.split("-", 1)[1], converged=bool(summary["converged"]),
         n_modes=len(diag), steps=max(d["n_steps"] for d in diag), mcse=mcse,
-        rel=float(np.max(rel)), worst=("2.5 % end", "16 % end", "median", "84 % end",
-                                       "97.5 % end")[int(np.argmax(rel))], median=p["median"],
+        rel=float(np.max(rel)), worst=REPORTED_NAMES[int(np.argmax(rel))], median=p["median"],
         stored=(p.get("mcse") or {}).get("largest"),
         reason=reasons[0] if reasons else "",
     )

@@ -187,6 +187,8 @@ def options_hash(cfg) -> str:
     if options["model"].get("night_offsets") == "off":
         for key in NIGHT_OPTIONS:
             options["model"].pop(key, None)
+    if options["sampler"].get("period_precision") == 0:  # the clause is off
+        options["sampler"].pop("period_precision")
     text = json.dumps(options, sort_keys=True, default=str)
     return hashlib.sha256(text.encode()).hexdigest()[:16]
 

@@ -43,7 +43,7 @@ from scipy import special
 
 from .errors import ConfigError
 from .sample import Posterior, relation
-from .sample.mcse import posterior_mcse
+from .sample.mcse import REPORTED, posterior_mcse
 from .sample.settings import SamplerConfig
 
 __all__ = [
@@ -78,7 +78,11 @@ def convergence_rule(sampler: SamplerConfig | None = None) -> str:
         f"ensembles below [sampler] rhat_max ({s.rhat_max:g}, Vehtari et al. 2021) for every "
         "parameter, and no stuck walkers; all counted after a discarded warm-up of [sampler] "
         f"warmup_steps ({s.warmup_steps}) steps, within a cap of max_steps ({s.max_steps}) "
-        "steps per ensemble"
+        "steps per ensemble" + (
+            f"; and each mode's period median and 68 % and 95 % interval ends have Monte Carlo "
+            f"standard errors below [sampler] period_precision ({s.period_precision:g}) of "
+            "their scale (half the 68 % interval for the median, the distance from the "
+            "median for an end)" if s.period_precision > 0 else "")
     )
 
 
@@ -223,10 +227,6 @@ def hdr_intervals(values, mass: float, weights=None, *, log: bool = True) -> lis
     return intervals
 
 
-#: Probabilities of the reported quantiles: 95 % end, 68 % end, median, 68 % end, 95 % end.
-_QUANTILES = (0.025, 0.16, 0.5, 0.84, 0.975)
-
-
 def period_mcse(posterior: Posterior, period: dict) -> dict:
     """Monte Carlo standard errors (days) of the reported period median and interval ends.
 
@@ -236,7 +236,7 @@ def period_mcse(posterior: Posterior, period: dict) -> dict:
     """
     est = [period["interval_95"][0], period["interval_68"][0], period["median"],
            period["interval_68"][1], period["interval_95"][1]]
-    m = posterior_mcse(posterior, "log_period", _QUANTILES, est)
+    m = posterior_mcse(posterior, "log_period", REPORTED, est)
     return {
         "unit": "d",
         "median": _num(m[2]),
@@ -247,7 +247,7 @@ def period_mcse(posterior: Posterior, period: dict) -> dict:
 
 
 def _describe(values, weights, map_value, unit: str) -> dict:
-    q = weighted_quantile(values, _QUANTILES, weights)
+    q = weighted_quantile(values, REPORTED, weights)
     return {
         "unit": unit,
         "median": float(q[2]),

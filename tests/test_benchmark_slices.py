@@ -92,6 +92,17 @@ def test_injection_recovery_slice(tmp_path):
     assert bench.load_carried(stars, bench._run_key(2, 1, str(cfg))) is None
 
 
+def test_committed_population_table_is_still_carried():
+    # The population benchmark grows across sessions only while its stars' key matches:
+    # a change of the code's options (a new option whose default changes nothing must be
+    # left out of the hash) would silently restart it. A deliberate change of the fit
+    # updates this test together with the table.
+    bench = _load("bench_population")
+    table = bench.Table.read(BENCH / "results" / "population_stars.ecsv", format="ascii.ecsv")
+    key = bench._run_key(7, 50, str(BENCH / "population_bench.toml"))
+    assert {k: table.meta.get(k) for k in key} == key
+
+
 def test_population_summary_counts_exact_cases():
     # Exact cases of the recovery criteria (hand-checked).
     bench = _load("bench_population")

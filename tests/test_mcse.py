@@ -9,6 +9,9 @@ References used below:
   sqrt(q (1 - q) / N) / f(x_q) (common practice; the normal approximation of the order
   statistics, e.g. Stuart & Ord, Kendall's Advanced Theory of Statistics, from memory),
   with f and x_q from SciPy's normal distribution;
+* ArviZ (a general-purpose Bayesian diagnostics library): ``arviz.ess(method="mean")`` is
+  the same estimator on split chains, ``arviz.mcse(method="quantile")`` the same
+  construction with the Beta interval mapped to the nearest order statistics outward;
 * a standard error is the spread of the estimate over independent replicates: the
   replicates below are generated with SciPy's ``lfilter`` (AR(1)) and NumPy, and their
   robust spread (half the 16-84 % range) is the reference.
@@ -17,6 +20,7 @@ References used below:
 from __future__ import annotations
 
 import math
+import warnings
 
 import numpy as np
 import pytest
@@ -44,6 +48,40 @@ def _ar1(rng, shape, rho):
 def _spread(x):
     lo, hi = np.quantile(x, [0.16, 0.84], axis=0)
     return 0.5 * (hi - lo)
+
+
+def _arviz():
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # ArviZ announces a refactor on import
+        import arviz
+    return arviz
+
+
+def test_ess_matches_arviz(rng):
+    arviz = _arviz()
+    cases = [
+        _ar1(rng, (4, 1000), 0.7),
+        _ar1(rng, (48, 300), 0.95),  # ensemble-like: many short chains
+        rng.standard_normal((2, 501)) + np.array([0.0, 0.4])[:, None],  # odd length, offset
+        (_ar1(rng, (4, 800), 0.8) <= 1.0).astype(float),  # an indicator, as for quantiles
+    ]
+    for chains in cases:
+        assert ess(chains) == pytest.approx(float(arviz.ess(chains, method="mean")), rel=1e-9)
+
+
+def test_quantile_mcse_matches_arviz(rng):
+    # ArviZ maps the Beta interval to the order statistics just outside it, we interpolate:
+    # the two agree on average and differ by a few order statistics in a given run.
+    arviz = _arviz()
+    q = (0.025, 0.16, 0.5, 0.975)
+    ratios = []
+    for _ in range(40):
+        x = _ar1(rng, (4, 1000), 0.7)
+        ratios.append([quantile_mcse([ModeDraws(x, 1.0)], p)[0]
+                       / float(arviz.mcse(x, method="quantile", prob=p)) for p in q])
+    ratios = np.array(ratios)
+    assert np.all(np.abs(np.median(ratios, axis=0) - 1) < 0.05), np.median(ratios, axis=0)
+    assert np.all((ratios > 0.75) & (ratios < 1.15)), (ratios.min(), ratios.max())
 
 
 def test_ess_of_independent_draws_is_their_number(rng):

@@ -20,6 +20,7 @@ from rotinfer.sample import (
     relation,
     run_ensembles,
 )
+from rotinfer.sample.mcse import run_precision
 
 MU = np.array([1.0, -2.0])
 COV = np.array([[1.0, 1.8], [1.8, 4.0]])  # correlation 0.9
@@ -72,6 +73,31 @@ def test_cap_reached_is_loud_and_marked_not_converged():
     assert run.converged is False
     assert run.diagnostics.reasons
     assert run.chains[0].shape[0] == 100
+
+
+def test_period_precision_clause_samples_until_the_numbers_are_precise():
+    # The optional clause (off by default) keeps sampling until the period's five reported
+    # numbers have Monte Carlo errors below the target fraction of their scale.
+    names = ("log_period", "x")
+    plain = run_ensembles(gaussian_2d, MU, COV, config=_small(), seed=3, names=names)
+    assert plain.converged and math.isnan(plain.diagnostics.period_precision)
+    reached = run_precision(plain.chains, plain.diagnostics.burn_in, 0)
+    target = 0.6 * reached  # stricter than what the rule alone gave
+    strict = run_ensembles(gaussian_2d, MU, COV, config=_small(period_precision=target),
+                           seed=3, names=names)
+    d = strict.diagnostics
+    assert strict.converged and d.n_steps > plain.diagnostics.n_steps
+    assert d.period_precision < target
+    assert d.period_precision == run_precision(strict.chains, d.burn_in, 0)
+    assert strict.chains[0][: plain.diagnostics.n_steps].tolist() == plain.chains[0].tolist()
+    # unreachable within the cap: not converged, and the reason says why
+    with pytest.warns(ConvergenceWarning, match="period numbers not yet precise"):
+        capped = run_ensembles(gaussian_2d, MU, COV, seed=3, names=names,
+                               config=_small(period_precision=0.001, max_steps=600))
+    assert not capped.converged
+    # a target without a period parameter does nothing
+    other = run_ensembles(gaussian_2d, MU, COV, config=_small(period_precision=0.001), seed=3)
+    assert other.converged
 
 
 def test_same_seed_same_chains_other_seed_differs():
@@ -309,6 +335,8 @@ def test_sampler_config_validation():
         SamplerConfig(move_weights=(1.0, 0.0))
     with pytest.raises(ConfigError, match="rhat_max"):
         SamplerConfig(rhat_max=0.99)
+    with pytest.raises(ConfigError, match=r"period_precision: must be in \[0, 1\) \(0 = off\)"):
+        SamplerConfig(period_precision=1.5)
 
 
 def _sbc(n_replicates, n_points, steps, seed, n_draws, grid=3):

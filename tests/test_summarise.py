@@ -161,6 +161,10 @@ def test_summary_contents_and_json(rng):
         "diagnostics"]["rule"]
     # ... or the settings the fit ran with, quoted in the rule
     assert "tau_multiple (20)" in rule and "max_steps (1500)" in rule
+    assert "period_precision" not in rule  # the optional clause, off ...
+    on = SamplerConfig(period_precision=0.1)
+    assert "below [sampler] period_precision (0.1)" in summarise(  # ... and on
+        post, identifier="demo", scan=scan, sampler=on).to_dict()["diagnostics"]["rule"]
 
 
 def test_detection_config_lists_choices():

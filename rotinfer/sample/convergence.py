@@ -234,6 +234,10 @@ class EnsembleDiagnostics:
         The verdict of :meth:`judge`.
     reasons : tuple of str
         Why not converged (empty when converged).
+    period_precision : float
+        Largest Monte Carlo error of the period median and interval ends relative to its
+        scale (:func:`rotinfer.sample.mcse.run_precision`); NaN unless the
+        ``[sampler] period_precision`` clause is on.
     """
 
     names: tuple[str, ...]
@@ -250,6 +254,7 @@ class EnsembleDiagnostics:
     stuck: int
     converged: bool
     reasons: tuple[str, ...]
+    period_precision: float = math.nan
 
     @classmethod
     def judge(
@@ -387,6 +392,7 @@ class EnsembleDiagnostics:
             "acceptance_fraction": _num(np.mean(self.acceptance)),
             "acceptance_fraction_per_ensemble": [_num(np.mean(a)) for a in self.acceptance],
             "stuck_walkers": self.stuck,
+            "period_precision": _num(self.period_precision),
         }
 
 

@@ -34,6 +34,7 @@ Tierney, L. 1994, Annals of Statistics 22, 1701.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import warnings
 from collections.abc import Callable
@@ -46,6 +47,7 @@ from ..errors import ConvergenceWarning
 from ._threads import single_blas_thread
 from .checkpoint import Checkpoint
 from .convergence import EnsembleDiagnostics
+from .mcse import run_precision
 from .settings import SamplerConfig
 
 __all__ = ["EnsembleRun", "IndependenceMove", "run_ensembles"]
@@ -246,6 +248,17 @@ class _Ensembles:
                                   self.rstates[e], names=names)
 
 
+def _with_precision(diagnostics: EnsembleDiagnostics, chains, column: int, target: float):
+    """The diagnostics with the ``[sampler] period_precision`` clause of the rule added."""
+    value = run_precision(chains, diagnostics.burn_in, column)
+    reasons = diagnostics.reasons
+    if not value < target:
+        reasons = (*reasons, f"period numbers not yet precise: largest Monte Carlo error "
+                             f"{value:.3f} of its scale (need below {target:g})")
+    return dataclasses.replace(diagnostics, period_precision=value,
+                               converged=not reasons, reasons=reasons)
+
+
 @single_blas_thread
 def run_ensembles(
     log_prob: Callable[[np.ndarray], float],
@@ -346,11 +359,15 @@ def run_ensembles(
         tau_rtol=config.tau_rtol, rhat_max=config.rhat_max, burn_in_tau=config.burn_in_tau,
         stuck_ratio=config.stuck_ratio, tau_noise_z=config.tau_noise_z,
     )
+    column = names.index("log_period") if "log_period" in names else None
     diagnostics = None
     while True:
         n = run.n_steps
         if n > 0 and (n % config.check_every == 0 or n >= config.max_steps):
             diagnostics = EnsembleDiagnostics.judge(run.chains, run.accepted, **judge_kwargs)
+            if config.period_precision > 0 and column is not None:
+                diagnostics = _with_precision(diagnostics, run.chains, column,
+                                              config.period_precision)
             if diagnostics.converged or n >= config.max_steps:
                 break
         steps = min(config.check_every - n % config.check_every, config.max_steps - n)

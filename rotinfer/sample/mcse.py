@@ -7,11 +7,12 @@ whether the chains can be trusted at all; the MCSE says how precise the publishe
 are once they can, and is the figure to quote beside them (Vehtari et al. 2021, Sect. 4).
 
 The effective sample size is the multi-chain estimator of Vehtari et al. (2021, eqs. 10-11,
-with Geyer's 1992 initial monotone sequence), with every walker of every ensemble counted as
-a chain, as is common practice for ensemble samplers. The MCSE of a quantile follows their
-Sect. 4.3: the indicator ``x <= q`` has an effective sample size S; the probabilities
-``q`` +/- one standard error (a Beta(S q + 1, S (1 - q) + 1) interval) are mapped back
-through the distribution of the draws, and half the width of that mapped interval is the MCSE.
+with Geyer's 1992 initial monotone sequence) on split chains, with every walker of every
+ensemble counted as a chain, as is common practice for ensemble samplers. The MCSE of a
+quantile follows their Sect. 4.3: the indicator ``x <= q`` has an effective sample size
+S; the probabilities ``q`` +/- one standard error (a Beta(S q + 1, S (1 - q) + 1)
+interval) are mapped back through the distribution of the draws, and half the width of
+that mapped interval is the MCSE.
 
 For a mixture of separately sampled modes with probabilities ``p_k`` the distribution
 function is ``F = sum p_k F_k``. Its Monte Carlo variance at a point is the sum of two parts:
@@ -36,7 +37,13 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
-__all__ = ["ModeDraws", "ess", "mixture_quantiles", "posterior_mcse", "quantile_mcse"]
+__all__ = ["REPORTED", "ModeDraws", "ess", "mixture_quantiles", "posterior_mcse",
+           "quantile_mcse", "relative_precision", "run_precision"]
+
+#: Probabilities of the reported numbers: 95 % end, 68 % end, median, 68 % end, 95 % end.
+REPORTED = (0.025, 0.16, 0.5, 0.84, 0.975)
+#: Their names, in the same order.
+REPORTED_NAMES = ("2.5 % end", "16 % end", "median", "84 % end", "97.5 % end")
 
 _ONE_SIGMA = stats.norm.cdf([-1.0, 1.0])  # 0.1587, 0.8413
 
@@ -50,13 +57,16 @@ def _autocovariance(x: np.ndarray) -> np.ndarray:
     return np.fft.irfft(f * np.conj(f), n=size, axis=1)[:, :n] / n
 
 
-def ess(chains) -> float:
+def ess(chains, *, split: bool = True) -> float:
     """Multi-chain effective sample size (Vehtari et al. 2021, eqs. 10-11).
 
     Parameters
     ----------
     chains : array_like, shape (n_chains, n_draws)
         Draws of one scalar, one row per chain (for an ensemble: one row per walker).
+    split : bool
+        Split each chain into halves first (their recommendation: a trend within a
+        chain then shows as disagreement between its halves).
 
     Returns
     -------
@@ -72,6 +82,9 @@ def ess(chains) -> float:
     of dropping out.
     """
     x = np.atleast_2d(np.asarray(chains, dtype=float))
+    if split and x.shape[1] >= 8:
+        half = x.shape[1] // 2
+        x = np.concatenate([x[:, :half], x[:, x.shape[1] - half:]], axis=0)
     m, n = x.shape
     if n < 4:
         return math.nan
@@ -221,3 +234,46 @@ def posterior_mcse(posterior, parameter: str = "log_period",
         modes.append(ModeDraws(np.concatenate(rows, axis=0), s.probability,
                                s.log_evidence_se))
     return quantile_mcse(modes, q, estimate)
+
+
+def relative_precision(estimates, mcse) -> np.ndarray:
+    """Each reported number's MCSE against its own scale.
+
+    Parameters
+    ----------
+    estimates, mcse : array_like, shape (5,)
+        The numbers at :data:`REPORTED` (2.5, 16, 50, 84, 97.5 %) and their MCSEs.
+
+    Returns
+    -------
+    ndarray, shape (5,)
+        The median's MCSE over half the 68 % interval (the posterior's sigma); each
+        interval end's over its distance from the median. Below 0.1: the number, and
+        the half-width it bounds, are fixed to a tenth. ``inf`` for a zero scale.
+    """
+    est = np.asarray(estimates, dtype=float)
+    mcse = np.asarray(mcse, dtype=float)
+    scale = np.abs(est - est[2])
+    scale[2] = 0.5 * (est[3] - est[1])
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(scale > 0, mcse / scale, np.inf)
+
+
+def run_precision(chains, burn_in, column: int) -> float:
+    """Largest :func:`relative_precision` of exp(``column``) for one mode's ensembles.
+
+    Parameters
+    ----------
+    chains : sequence of ndarray, each (n_steps, n_walkers, ndim)
+    burn_in : sequence of int
+        Steps discarded per ensemble (the common post-burn-in length is used).
+    column : int
+        The log-scaled parameter (the log period).
+    """
+    n = min(c.shape[0] - b for c, b in zip(chains, burn_in, strict=True))
+    if n < 4:
+        return math.inf
+    rows = np.concatenate([np.exp(c[c.shape[0] - n:, :, column]).T for c in chains], axis=0)
+    draws = [ModeDraws(rows, 1.0)]
+    est = mixture_quantiles(draws, REPORTED)
+    return float(np.max(relative_precision(est, quantile_mcse(draws, REPORTED, est))))

@@ -53,7 +53,7 @@ __all__ = ["Posterior", "SampledMode", "fit", "importance_log_evidence", "optimi
 # Settings that do not shape the chains' content (the cap, the evidence draws, the
 # noise allowance of the stability clause, added later) stay out, so a changed value
 # resumes a checkpoint instead of starting over.
-_NOT_IN_FINGERPRINT = ("max_steps", "importance_draws", "tau_noise_z")
+_NOT_IN_FINGERPRINT = ("max_steps", "importance_draws", "tau_noise_z", "period_precision")
 #: Model options that do not change the periodic model's chains (the detection test's
 #: comparison model only), so checkpoints resume across them.
 _MODEL_NOT_IN_FINGERPRINT = ("max_comparison_backgrounds",)

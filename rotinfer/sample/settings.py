@@ -78,6 +78,13 @@ class SamplerConfig:
     importance_draws : int
         Draws for the importance-sampling evidence of each sampled mode (used to
         weight modes when more than one is sampled).
+    period_precision : float
+        0 (default) = off. Otherwise a clause of the convergence rule: each sampled mode
+        goes on sampling (within ``max_steps``) until its own period median and 68 % and
+        95 % interval ends have Monte Carlo standard errors below this fraction of their
+        scale — the median's: half the 68 % interval; an end's: its distance from the
+        median (:func:`rotinfer.sample.mcse.relative_precision`). 0.1 fixes every
+        published number to a tenth of its uncertainty.
     """
 
     starts_per_period: int = 2
@@ -102,6 +109,7 @@ class SamplerConfig:
     warmup_steps: int = 300
     adapted_scale: float = 1.2
     importance_draws: int = 1000
+    period_precision: float = 0.0
 
     def __post_init__(self):
         positive_ints = (
@@ -124,6 +132,9 @@ class SamplerConfig:
             raise ConfigError(f"[sampler] period_window: must exceed 1, got {self.period_window}")
         if not self.tau_noise_z >= 0:
             raise ConfigError(f"[sampler] tau_noise_z: must be >= 0, got {self.tau_noise_z}")
+        if not 0 <= self.period_precision < 1:
+            raise ConfigError(f"[sampler] period_precision: must be in [0, 1) (0 = off), got "
+                              f"{self.period_precision}")
         if not self.rhat_max > 1:
             raise ConfigError(f"[sampler] rhat_max: must exceed 1, got {self.rhat_max}")
         if not 0 <= self.stuck_ratio < 1:
