@@ -84,6 +84,33 @@ def star_mcse(folder: Path) -> dict:
     )
 
 
+_COLUMNS = ("star", "cls", "converged", "n_modes", "steps", "median", "rel", "worst",
+            "reason")
+
+
+def _merge(path: Path, rows: list[dict]) -> list[dict]:
+    """Rows kept in ``path`` (ECSV) for other stars, plus ``rows``; the file is rewritten."""
+    from astropy.table import Table
+
+    kept = []
+    if path.is_file():
+        now = {r["star"] for r in rows}
+        for t in Table.read(path, format="ascii.ecsv"):
+            if t["star"] not in now:
+                r = {c: t[c].item() if hasattr(t[c], "item") else t[c] for c in _COLUMNS}
+                r["mcse"] = np.array([t[f"mcse{i}"] for i in range(5)], dtype=float)
+                kept.append(r)
+    out = sorted(kept + rows, key=lambda r: r["star"])
+    table = Table(rows=[[r[c] for c in _COLUMNS] + list(map(float, r["mcse"])) for r in out],
+                  names=[*_COLUMNS, *(f"mcse{i}" for i in range(5))])
+    table.meta["description"] = ("Monte Carlo errors (days) of the period's 2.5 %, 16 %, 50 %, "
+                                 "84 % and 97.5 % points (mcse0-4); rel = largest relative "
+                                 "to its scale (benchmarks/bench_mcse.py)")
+    path.parent.mkdir(parents=True, exist_ok=True)
+    table.write(path, format="ascii.ecsv", overwrite=True)
+    return out
+
+
 def _median(values) -> str:
     return f"{np.median(values):.3f}" if len(values) else "–"
 
@@ -93,6 +120,10 @@ def main(argv=None) -> int:
     ap.add_argument("--work", default=str(HERE / "work" / "population"),
                     help="bench_population.py work folder (survey/stars/) or a survey folder")
     ap.add_argument("--out", default=str(HERE / "results" / "mcse.md"))
+    ap.add_argument("--table", default=None,
+                    help="ECSV file of per-star rows kept across runs (work folders are "
+                         "temporary): rows of stars measured now replace theirs, the others "
+                         "stay, and the summary covers them all")
     args = ap.parse_args(argv)
 
     from rotinfer import __version__
@@ -107,6 +138,9 @@ def main(argv=None) -> int:
         rows.append(r)
         print(f"{r['star']}: converged {r['converged']}, {r['n_modes']} mode(s), precision "
               f"{r['rel']:.3f} ({r['worst']})", flush=True)
+    n_now = len(rows)
+    if args.table:
+        rows = _merge(Path(args.table), rows)
 
     lines = [
         "# Monte Carlo precision of the reported periods",
@@ -114,7 +148,9 @@ def main(argv=None) -> int:
         f"- date: {datetime.datetime.now(datetime.UTC):%Y-%m-%d %H:%M} UTC; machine: "
         f"{platform.machine()}, {os.cpu_count()} cores; rotinfer {__version__}, numpy "
         f"{np.__version__}, Python {platform.python_version()}",
-        f"- stars: the {len(rows)} finished stars of {work} (their chains as fitted)",
+        f"- stars: {len(rows)}: the {n_now} finished stars of {work} (their chains as "
+        "fitted)" + (f", with the rows kept in {Path(args.table).name} from earlier work "
+                     "folders" if args.table else ""),
         "- command: python benchmarks/bench_mcse.py --work WORK",
         "- precision: the largest, over the period median and the 68 % and 95 % interval ends, "
         "of the number's Monte Carlo standard error divided by its own scale (the median's: "

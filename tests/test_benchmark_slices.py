@@ -79,6 +79,17 @@ def test_injection_recovery_slice(tmp_path):
     for folder in (tmp_path / "work" / "survey" / "stars").glob("*-*"):
         r = mcse.star_mcse(folder)
         assert float(np.max(r["mcse"])) == pytest.approx(r["stored"], rel=1e-9)
+    # Kept across work folders: a star measured in an earlier folder stays in the table.
+    kept = tmp_path / "mcse_stars.ecsv"
+    mcse.main(["--work", str(tmp_path / "work"), "--out", str(tmp_path / "m.md"),
+               "--table", str(kept)])
+    t = bench.Table.read(kept, format="ascii.ecsv")
+    t["star"][0] = "09999-easy"  # as if from another session's folder
+    t.write(kept, format="ascii.ecsv", overwrite=True)
+    mcse.main(["--work", str(tmp_path / "work"), "--out", str(tmp_path / "m.md"),
+               "--table", str(kept)])
+    assert len(bench.Table.read(kept, format="ascii.ecsv")) == 5
+    assert "| easy | 2 |" in (tmp_path / "m.md").read_text()
 
     # A later run (fresh work folder, same seed, size and configuration) carries the four
     # finished stars instead of fitting them again, and reports the same table.
