@@ -61,7 +61,7 @@ def star_mcse(folder: Path) -> dict:
             for e in range(len(d["burn_in"])):
                 g = f[f"mode{k}/ensemble{e}"]
                 j = json.loads(g.attrs["names"]).index("log_period")
-                end = int(g.attrs["n_steps"])
+                end = int(d["n_steps"])  # as summarised (a later resume may add steps)
                 rows.append(np.exp(g["chain"][end - n_common:end, :, j]).T)
             se, ess = info.get("log_evidence_importance_se"), info.get("importance_ess")
             if se is None:  # older summaries: from the Kish ESS (see the module docstring)

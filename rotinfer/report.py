@@ -420,7 +420,7 @@ def write_vetting_page(results: str | os.PathLike[str], *, star_pages: bool = Tr
         raise InputError(str(results), f"no star folders with a {SUMMARY_NAME} inside")
     headers = ["star", "thumbnail", "period [d]", "68 % interval [d]", "95 % interval [d]",
                "amplitude [ppt]", "detected", "harmonic warning", "sampling warning", "converged",
-               "largest Monte Carlo error [d]", "Lomb-Scargle [d]", "ACF [d]", "status"]
+               "Monte Carlo error [d] (/ its scale)", "Lomb-Scargle [d]", "ACF [d]", "status"]
     rows = []
     for folder in folders:
         s = _read_summary(folder)
@@ -444,7 +444,9 @@ def write_vetting_page(results: str | os.PathLike[str], *, star_pages: bool = Tr
             _cell(lookup(s, "harmonic.flag"), _yesno(lookup(s, "harmonic.flag"), False)),
             _cell(lookup(s, "sampling.flag"), _yesno(lookup(s, "sampling.flag"), False)),
             _cell(s.get("converged"), _yesno(s.get("converged"))),
-            _cell(lookup(s, "period.mcse.largest")),
+            _cell(lookup(s, "period.mcse.relative"),
+                  f"{_fmt(lookup(s, 'period.mcse.largest'), 2)} "
+                  f"({_fmt(lookup(s, 'period.mcse.relative'), 2)})"),
             _cell(lookup(s, "baselines.lomb_scargle.period")),
             _cell(lookup(s, "baselines.acf.period")),
             _cell(s.get("status", "ok")),

@@ -43,7 +43,7 @@ from scipy import special
 
 from .errors import ConfigError
 from .sample import Posterior, relation
-from .sample.mcse import REPORTED, posterior_mcse
+from .sample.mcse import REPORTED, posterior_mcse, relative_precision
 from .sample.settings import SamplerConfig
 
 __all__ = [
@@ -231,18 +231,22 @@ def period_mcse(posterior: Posterior, period: dict) -> dict:
     """Monte Carlo standard errors (days) of the reported period median and interval ends.
 
     From the full post-burn-in chains of every sampled mode and the standard errors of the
-    modes' probabilities (:func:`rotinfer.sample.mcse.posterior_mcse`; Vehtari et al. 2021,
-    Sect. 4.3). ``largest`` is the largest of the five.
+    modes' probabilities (:func:`rotinfer.sample.mcse.posterior_mcse`; Vehtari et al. 2021).
+    ``largest`` is the largest of the five; ``relative`` the largest of each number's error
+    over its own scale (:func:`rotinfer.sample.mcse.relative_precision`: below 0.1, every
+    number and half-width is fixed to a tenth).
     """
     est = [period["interval_95"][0], period["interval_68"][0], period["median"],
            period["interval_68"][1], period["interval_95"][1]]
     m = posterior_mcse(posterior, "log_period", REPORTED, est)
+    rel = relative_precision(est, m)
     return {
         "unit": "d",
         "median": _num(m[2]),
         "interval_68": [_num(m[1]), _num(m[3])],
         "interval_95": [_num(m[0]), _num(m[4])],
         "largest": _num(np.nanmax(m)) if np.any(np.isfinite(m)) else None,
+        "relative": _num(np.nanmax(rel)) if np.any(np.isfinite(rel)) else None,
     }
 
 

@@ -30,7 +30,8 @@ def _summary(identifier, period, detected=True, converged=True, harmonic=False,
         "period": {"median": period, "interval_68": [period * 0.97, period * 1.03],
                    "interval_95": [period * 0.94, period * 1.06], "map": period,
                    "mcse": {"unit": "d", "median": 0.0021, "interval_68": [0.0032, 0.0035],
-                            "interval_95": [0.0071, 0.0093], "largest": 0.0093}},
+                            "interval_95": [0.0071, 0.0093], "largest": 0.0093,
+                            "relative": 0.054}},
         "amplitude_ppt": {"median": 4.2, "interval_68": [3.9, 4.5], "interval_95": [3.5, 4.9]},
         "coherence_time_days": {"median": 30.0, "interval_68": [20.0, 45.0],
                                 "interval_95": [12.0, 70.0]},
@@ -125,7 +126,7 @@ def test_vetting_page_lists_every_star(tmp_path):
     assert [p.name for p in find_star_folders(tmp_path)] == sorted(names)
     page = write_vetting_page(tmp_path).read_text()
     assert page.count("<tr><td data-sort=") == 3
-    assert "largest Monte Carlo error [d]" in page and ">0.0093</td>" in page
+    assert "Monte Carlo error [d] (/ its scale)" in page and ">0.0093 (0.054)</td>" in page
     for name in names:
         assert (tmp_path / name / "index.html").is_file()
 

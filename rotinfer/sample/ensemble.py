@@ -365,7 +365,8 @@ def run_ensembles(
         n = run.n_steps
         if n > 0 and (n % config.check_every == 0 or n >= config.max_steps):
             diagnostics = EnsembleDiagnostics.judge(run.chains, run.accepted, **judge_kwargs)
-            if config.period_precision > 0 and column is not None:
+            if config.period_precision > 0 and column is not None and (
+                    diagnostics.converged or n >= config.max_steps):
                 diagnostics = _with_precision(diagnostics, run.chains, column,
                                               config.period_precision)
             if diagnostics.converged or n >= config.max_steps:

@@ -4,12 +4,12 @@ A reported interval end is an estimate from a finite, autocorrelated chain; its 
 Carlo standard error (MCSE) says how far another run with a different seed would move it.
 The convergence rule (:class:`~rotinfer.sample.convergence.EnsembleDiagnostics`) asks
 whether the chains can be trusted at all; the MCSE says how precise the published numbers
-are once they can, and is the figure to quote beside them (Vehtari et al. 2021, Sect. 4).
+are once they can, and is the figure to quote beside them (Vehtari et al. 2021).
 
-The effective sample size is the multi-chain estimator of Vehtari et al. (2021, eqs. 10-11,
-with Geyer's 1992 initial monotone sequence) on split chains, with every walker of every
+The effective sample size is the multi-chain estimator of Vehtari et al. (2021, with
+Geyer's 1992 initial monotone sequence) on split chains, with every walker of every
 ensemble counted as a chain, as is common practice for ensemble samplers. The MCSE of a
-quantile follows their Sect. 4.3: the indicator ``x <= q`` has an effective sample size
+quantile follows the same paper: the indicator ``x <= q`` has an effective sample size
 S; the probabilities ``q`` +/- one standard error (a Beta(S q + 1, S (1 - q) + 1)
 interval) are mapped back through the distribution of the draws, and half the width of
 that mapped interval is the MCSE.
@@ -19,7 +19,8 @@ function is ``F = sum p_k F_k``. Its Monte Carlo variance at a point is the sum 
 the modes' own chains, ``sum p_k^2 F_k (1 - F_k) / S_k``, and the uncertainty of the mode
 probabilities from their log-evidence standard errors ``s_j`` (delta method through the
 softmax, ``dF / d ln Z_j = p_j (F_j - F)``), ``sum p_j^2 (F_j - F)^2 s_j^2``. The mixture's
-effective sample size is then ``F (1 - F) / var``, mapped back as above.
+effective sample size is then ``q (1 - q) / var`` at the estimated ``q`` quantile (where
+``F`` is ``q``), mapped back as above.
 
 References
 ----------
@@ -58,7 +59,7 @@ def _autocovariance(x: np.ndarray) -> np.ndarray:
 
 
 def ess(chains, *, split: bool = True) -> float:
-    """Multi-chain effective sample size (Vehtari et al. 2021, eqs. 10-11).
+    """Multi-chain effective sample size (Vehtari et al. 2021).
 
     Parameters
     ----------
@@ -71,8 +72,9 @@ def ess(chains, *, split: bool = True) -> float:
     Returns
     -------
     float
-        Effective sample size; NaN when there are fewer than 4 draws per chain, and the
-        total number of draws when the draws are all equal (nothing to estimate).
+        Effective sample size; NaN for non-finite draws or fewer than 4 draws per (split)
+        chain, and the total number of draws when the draws are all equal (nothing to
+        estimate).
 
     Notes
     -----
@@ -82,7 +84,10 @@ def ess(chains, *, split: bool = True) -> float:
     of dropping out.
     """
     x = np.atleast_2d(np.asarray(chains, dtype=float))
-    if split and x.shape[1] >= 8:
+    total = x.size
+    if not np.all(np.isfinite(x)):
+        return math.nan
+    if split:
         half = x.shape[1] // 2
         x = np.concatenate([x[:, :half], x[:, x.shape[1] - half:]], axis=0)
     m, n = x.shape
@@ -95,7 +100,7 @@ def ess(chains, *, split: bool = True) -> float:
     if m > 1:
         var_plus += float(np.var(chain_mean, ddof=1))
     if not var_plus > 0:
-        return float(m * n)
+        return float(total)
     rho = np.zeros(n)
     rho[0] = 1.0
     mean_acov = acov.mean(axis=0)

@@ -99,6 +99,9 @@ CATALOG_COLUMNS: tuple[CatalogColumn, ...] = (
     _c("period_mcse", "float", "d",
        "Largest Monte Carlo standard error of the period median and interval ends",
        "period.mcse.largest"),
+    _c("period_mcse_relative", "float", None,
+       "Largest Monte Carlo error of the period's numbers over its own scale (median: half "
+       "the 68% interval; an end: its distance from the median)", "period.mcse.relative"),
     _c("period_ls", "float", "d", "Period of the highest Lomb-Scargle peak (baseline)",
        "baselines.lomb_scargle.period"),
     _c("period_acf", "float", "d", "Period from the autocorrelation function (baseline)",
