@@ -230,6 +230,9 @@ def _diagnostics_table(diag: Mapping[str, Any]) -> str:
                 f", {_fmt(mode.get('n_steps'))} steps, acceptance fraction "
                 f"{_fmt(mode.get('acceptance_fraction'), 3)}, stuck walkers "
                 f"{_fmt(mode.get('stuck_walkers'))}")
+        if _finite(mode.get("period_precision")):
+            head += (f", period precision {_fmt(mode.get('period_precision'), 2)} (largest Monte "
+                     "Carlo error of its period numbers over their scale)")
         reasons = mode.get("reasons") or []
         if reasons:
             head += " — " + html.escape("; ".join(str(r) for r in reasons))

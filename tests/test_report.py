@@ -52,7 +52,8 @@ def _summary(identifier, period, detected=True, converged=True, harmonic=False,
                                    "tau_steps": {"log_period": 12.0},
                                    "length_in_tau": {"log_period": 75.0},
                                    "ess": {"log_period": 800.0},
-                                   "rhat": {"log_period": 1.003}}]},
+                                   "rhat": {"log_period": 1.003},
+                                   "period_precision": 0.043}]},
         "seconds": 12.5,
         "seed": 1,
         "version": "test",
@@ -93,6 +94,7 @@ def test_star_page_is_self_contained_and_explains_flags(tmp_path):
     assert "length over 20 autocorrelation times" in page  # the configured rule, not 50
     assert "Sampling warning" not in page
     assert "R-hat 1.2 &gt; 1.01" in page and "split R-hat across ensembles" in page
+    assert "period precision 0.043" in page  # the optional clause's figure, when recorded
     # the Monte Carlo errors of the period's numbers, with units
     assert ("median ± 0.0021 d; 68 % ends ± 0.0032, ± 0.0035 d; 95 % ends ± 0.0071, "
             "± 0.0093 d") in page
