@@ -181,18 +181,18 @@ def main(argv=None) -> int:
         "97.5 % [d] | precision (least precise number) | first reason |",
         "|---|---:|---:|---:|---|---|---|",
     ]
-    for r in rows:
-        if not r["converged"]:
-            m = r["mcse"]
-            lines.append(
-                f"| {r['star']} | {r['n_modes']} | {r['steps']} | {r['median']:.4g} | "
-                f"{m[0]:.2g} / {m[2]:.2g} / {m[4]:.2g} | {r['rel']:.3f} ({r['worst']}) | "
-                f"{r['reason']} |")
-    out = Path(args.out)
-    out.parent.mkdir(parents=True, exist_ok=True)
-    out.write_text("\n".join(lines) + "\n")
-    print(f"wrote {out}")
+    lines += [_unconverged_row(r) for r in rows if not r["converged"]]
+    Path(args.out).parent.mkdir(parents=True, exist_ok=True)
+    Path(args.out).write_text("\n".join(lines) + "\n")
+    print(f"wrote {args.out}")
     return 0
+
+
+def _unconverged_row(r: dict) -> str:
+    m = r["mcse"]
+    return (f"| {r['star']} | {r['n_modes']} | {r['steps']} | {r['median']:.4g} | "
+            f"{m[0]:.2g} / {m[2]:.2g} / {m[4]:.2g} | {r['rel']:.3f} ({r['worst']}) | "
+            f"{r['reason']} |")
 
 
 if __name__ == "__main__":
