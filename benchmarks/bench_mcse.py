@@ -47,6 +47,7 @@ def star_mcse(folder: Path) -> dict:
         quantile_mcse,
         relative_precision,
     )
+    from rotinfer.summarise import reported_numbers
 
     summary = json.loads((folder / "summary.json").read_text())
     n_draws = int(summary["config"]["sampler"]["importance_draws"])
@@ -70,8 +71,7 @@ def star_mcse(folder: Path) -> dict:
             modes.append(ModeDraws(np.concatenate(rows, axis=0),
                                    info["probability"] if len(diag) > 1 else 1.0, se))
     p = summary["period"]
-    est = [p["interval_95"][0], p["interval_68"][0], p["median"], p["interval_68"][1],
-           p["interval_95"][1]]
+    est = reported_numbers(p)
     mcse = quantile_mcse(modes, REPORTED, est)
     rel = relative_precision(est, mcse)
     reasons = [r for d in diag for r in d["reasons"]]

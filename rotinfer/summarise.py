@@ -227,6 +227,13 @@ def hdr_intervals(values, mass: float, weights=None, *, log: bool = True) -> lis
     return intervals
 
 
+def reported_numbers(block: dict) -> list[float]:
+    """A summary block's numbers in :data:`~rotinfer.sample.mcse.REPORTED` order: the 95 %
+    and 68 % lower ends, the median, the 68 % and 95 % upper ends."""
+    return [block["interval_95"][0], block["interval_68"][0], block["median"],
+            block["interval_68"][1], block["interval_95"][1]]
+
+
 def period_mcse(posterior: Posterior, period: dict) -> dict:
     """Monte Carlo standard errors (days) of the reported period median and interval ends.
 
@@ -236,8 +243,7 @@ def period_mcse(posterior: Posterior, period: dict) -> dict:
     over its own scale (:func:`rotinfer.sample.mcse.relative_precision`: below 0.1, every
     number and half-width is fixed to a tenth).
     """
-    est = [period["interval_95"][0], period["interval_68"][0], period["median"],
-           period["interval_68"][1], period["interval_95"][1]]
+    est = reported_numbers(period)
     m = posterior_mcse(posterior, "log_period", REPORTED, est)
     rel = relative_precision(est, m)
     return {

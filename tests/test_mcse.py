@@ -36,7 +36,7 @@ from rotinfer.sample.mcse import (
     posterior_mcse,
     quantile_mcse,
 )
-from rotinfer.summarise import summarise
+from rotinfer.summarise import reported_numbers, summarise
 
 
 def _ar1(rng, shape, rho):
@@ -176,10 +176,7 @@ def test_period_mcse_in_the_summary(rng):
     assert all(0 < v < 0.05 for v in ends)
     assert block["interval_95"][0] > block["median"]  # tails are less precise than the median
     # "relative": each error over its own scale (exact, from the reported numbers)
-    est = [period["interval_95"][0], period["interval_68"][0], period["median"],
-           period["interval_68"][1], period["interval_95"][1]]
-    err = [block["interval_95"][0], block["interval_68"][0], block["median"],
-           block["interval_68"][1], block["interval_95"][1]]
+    est, err = reported_numbers(period), reported_numbers(block)
     sigma = 0.5 * (est[3] - est[1])
     ratios = [e / abs(x - est[2]) for e, x in zip(err, est, strict=True) if x != est[2]]
     assert block["relative"] == pytest.approx(max(err[2] / sigma, *ratios))

@@ -230,15 +230,16 @@ def posterior_mcse(posterior, parameter: str = "log_period",
         As for :func:`quantile_mcse`.
     """
     j = posterior.names.index(parameter)
-    modes = []
-    for s in posterior.sampled:
-        run = s.run
-        n = min(c.shape[0] - b for c, b in zip(run.chains, run.diagnostics.burn_in,
-                                                   strict=True))
-        rows = [np.exp(c[c.shape[0] - n:, :, j]).T for c in run.chains]
-        modes.append(ModeDraws(np.concatenate(rows, axis=0), s.probability,
-                               s.log_evidence_se))
+    modes = [ModeDraws(walker_rows(s.run.chains, s.run.diagnostics.burn_in, j), s.probability,
+                       s.log_evidence_se) for s in posterior.sampled]
     return quantile_mcse(modes, q, estimate)
+
+
+def walker_rows(chains, burn_in, column: int) -> np.ndarray:
+    """exp(``column``) of one mode's ensembles, one row per walker, over the post-burn-in
+    steps all ensembles share (the latest ones): shape (n_walkers x n_ensembles, n)."""
+    n = max(min(c.shape[0] - b for c, b in zip(chains, burn_in, strict=True)), 0)
+    return np.concatenate([np.exp(c[c.shape[0] - n:, :, column]).T for c in chains], axis=0)
 
 
 def relative_precision(estimates, mcse) -> np.ndarray:
@@ -275,10 +276,9 @@ def run_precision(chains, burn_in, column: int) -> float:
     column : int
         The log-scaled parameter (the log period).
     """
-    n = min(c.shape[0] - b for c, b in zip(chains, burn_in, strict=True))
-    if n < 4:
+    rows = walker_rows(chains, burn_in, column)
+    if rows.shape[1] < 4:
         return math.inf
-    rows = np.concatenate([np.exp(c[c.shape[0] - n:, :, column]).T for c in chains], axis=0)
     draws = [ModeDraws(rows, 1.0)]
     est = mixture_quantiles(draws, REPORTED)
     return float(np.max(relative_precision(est, quantile_mcse(draws, REPORTED, est))))
