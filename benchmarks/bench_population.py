@@ -159,7 +159,7 @@ def _git_commit() -> str:
 #: Options that change what a summary says but not the fit or the table (not in the key).
 REPORT_ONLY = (("periodogram", "window_threshold"), ("periodogram", "window_max_peaks"),
                ("periodogram", "window_min_gap"), ("detection", "sampling_tolerance"),
-               ("detection", "sampling_probability"))
+               ("detection", "sampling_probability"), ("detection", "harmonic_baselines"))
 
 
 #: Options of the per-night offset term, which leave the fit unchanged while it is "off".
@@ -296,12 +296,42 @@ def summarise(work: Path, out: Path, figure: Path, header: list[str], *,
         "interval overlaps the true range, over stars called periodic. Stars of a spotted "
         "class whose spots left no signal (truth n_spots = 0, e.g. at a cycle minimum) "
         "are counted under 'stars' but not 'with signal'.")
+    lines += [""] + _baseline_clause_lines(t, p, p_acf, classes, hit, harmonic, signal)
     _figure(t[signal], hit[signal], figure)
     lines.append("")
     lines.append(f"![completeness]({figure.name})")
     text = "\n".join(lines) + "\n"
     out.write_text(text)
     return text
+
+
+def _baseline_clause_lines(t, p, p_acf, classes, hit, harmonic, signal) -> list[str]:
+    """How often the harmonic warning's baseline clause fires, by what the star really is.
+
+    The clause (``rotinfer.summarise.baseline_harmonics`` with the default
+    ``[detection] harmonic_baselines``) needs only the reported period and the baselines,
+    which every star of the table carries, so it is judged on all of them, whatever code
+    fitted them (the posterior's own clause is not in the star table).
+    """
+    from rotinfer.summarise import DetectionConfig, baseline_harmonics
+
+    cfg = DetectionConfig()
+    flagged = np.array([bool(baseline_harmonics({"acf": {"period": a}}, q, cfg))
+                        for q, a in zip(p, p_acf, strict=True)])
+    lines = ["Harmonic warning, baseline clause (the ACF period near half or twice the "
+             "reported one; `[detection] harmonic_baselines`): stars it flags, by what "
+             "they are.", "",
+             "| class | harmonic errors flagged | within 10 % flagged (false warnings) | "
+             "other misses flagged | null stars flagged |", "|---|---|---|---|---|"]
+    for cls in CLASSES:
+        m = classes == cls
+        if cls == "null":
+            lines.append(f"| {cls} | - | - | - | {_frac(flagged[m])} |")
+            continue
+        s = m & signal
+        lines.append(f"| {cls} | {_frac(flagged[s & harmonic])} | {_frac(flagged[s & hit])} "
+                     f"| {_frac(flagged[s & ~hit & ~harmonic])} | - |")
+    return lines
 
 
 def compare(work: Path, before: Path, after: Table, out: Path, header: list[str]) -> str:

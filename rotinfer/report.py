@@ -22,7 +22,7 @@ from pathlib import Path
 from typing import Any
 
 from .errors import InputError
-from .summarise import false_alarm_text
+from .summarise import BASELINE_NAMES, false_alarm_text
 
 __all__ = [
     "SUMMARY_NAME",
@@ -153,13 +153,21 @@ def _flag_sentences(summary: Mapping[str, Any]) -> list[str]:
         )
     harmonic = summary.get("harmonic") or {}
     if harmonic.get("flag"):
-        p_half = harmonic.get("probability_half")
-        p_double = harmonic.get("probability_double")
+        reasons = []
+        # summaries written before the baseline clause carry only "flag"
+        if harmonic.get("flag_posterior", not harmonic.get("baselines")):
+            reasons.append(
+                "the posterior gives non-negligible probability to a period near half (P/2: "
+                f"{_fmt(harmonic.get('probability_half'))}) or double (2P: "
+                f"{_fmt(harmonic.get('probability_double'))}) the reported one")
+        for b in harmonic.get("baselines") or []:
+            reasons.append(
+                f"the {BASELINE_NAMES.get(b.get('method'), b.get('method'))} period "
+                f"({_fmt(b.get('period'))} d) is near {b.get('relation')} of the reported one")
         out.append(
-            "Harmonic warning: the posterior gives non-negligible probability to a period near "
-            f"half (P/2: {_fmt(p_half)}) or double (2P: {_fmt(p_double)}) the reported one. "
-            "Two spot groups on opposite hemispheres make two dips per rotation; a repeating "
-            "pattern is also periodic at twice its period. Check the folded light curve."
+            f"Harmonic warning: {'; '.join(reasons)}. Two spot groups on opposite "
+            "hemispheres make two dips per rotation; a repeating pattern is also periodic at "
+            "twice its period. Check the folded light curve at both periods."
         )
     sampling = summary.get("sampling") or {}
     if sampling.get("flag"):

@@ -52,6 +52,7 @@ __all__ = [
     "detection",
     "detection_statistics",
     "false_alarm_text",
+    "baseline_harmonics",
     "harmonic_check",
     "sampling_check",
     "hdr_intervals",
@@ -89,6 +90,10 @@ def convergence_rule(sampler: SamplerConfig | None = None) -> str:
 #: The rule with the default settings (:func:`convergence_rule`).
 CONVERGENCE_RULE = convergence_rule()
 
+#: Baseline methods the harmonic check can consult (``[detection] harmonic_baselines``),
+#: with the names shown to users.
+BASELINE_NAMES = {"acf": "ACF", "lomb_scargle": "Lomb-Scargle"}
+
 
 @dataclass(frozen=True)
 class DetectionConfig:
@@ -120,6 +125,15 @@ class DetectionConfig:
         2P (or the Laplace probability of an unsampled mode there) exceeds this.
     harmonic_tolerance : float
         "Near" means within this fraction of P/2 or 2P.
+    harmonic_baselines : tuple of {"acf", "lomb_scargle"}
+        The harmonic flag is also raised when one of these baseline periods lies
+        near half or twice the reported period (the posterior median), whatever
+        probability the posterior gives there. An empty tuple leaves the flag to
+        the posterior alone. The ACF is the default: on the simulated population
+        (BENCHMARKS.md section 1f) it sat at twice the reported period for most
+        of the stars whose posterior had settled at half the truth, in modes
+        that held no probability near the true period, while Lomb-Scargle added
+        only false warnings.
     agreement_tolerance : float
         A baseline period agrees with the posterior when it lies in the 95 %
         interval widened by this fraction.
@@ -144,6 +158,7 @@ class DetectionConfig:
     )
     harmonic_probability: float = 0.05
     harmonic_tolerance: float = 0.1
+    harmonic_baselines: tuple[str, ...] = ("acf",)
     agreement_tolerance: float = 0.1
     sampling_tolerance: float = 0.05
     sampling_probability: float = 0.05
@@ -161,6 +176,12 @@ class DetectionConfig:
             v = getattr(self, name)
             if not 0 < v < 1:
                 raise ConfigError(f"[detection] {name}: must be in (0, 1), got {v}")
+        bad = [m for m in self.harmonic_baselines if m not in BASELINE_NAMES]
+        if bad:
+            raise ConfigError(
+                f"[detection] harmonic_baselines: {bad[0]!r} is not allowed; choose from "
+                + ", ".join(repr(m) for m in BASELINE_NAMES)
+            )
         for name in ("false_alarm_rate", "false_alarm_upper_95"):
             v = getattr(self, name)
             if v is not None and not 0 <= v <= 1:
@@ -268,13 +289,53 @@ def _describe(values, weights, map_value, unit: str) -> dict:
 
 
 # --------------------------------------------------------------- harmonic check
-def harmonic_check(posterior: Posterior, reference: float, config: DetectionConfig) -> dict:
-    """Posterior probability of periods near ``reference``/2 and 2 x ``reference``.
+def baseline_harmonics(scan: dict | None, period: float, config: DetectionConfig) -> list[dict]:
+    """The baseline periods of ``config.harmonic_baselines`` near half or twice ``period``.
 
-    Two sources, both reported: the weighted draws (all sampled modes), and
-    the Laplace probabilities of modes the optimiser found but that were not
-    competitive enough to be sampled. The flag is raised when either exceeds
-    ``config.harmonic_probability``.
+    Parameters
+    ----------
+    scan : dict or None
+        ``ScanResult.to_dict()`` (its ``acf`` and ``lomb_scargle`` blocks), or a mapping
+        of method name to ``{"period": days}``.
+    period : float
+        The reported period (days).
+    config : DetectionConfig
+
+    Returns
+    -------
+    list of dict
+        ``{"method", "period" (d), "relation": "P/2" or "2P"}`` for each such baseline,
+        in the order of ``config.harmonic_baselines``.
+    """
+    out = []
+    for method in config.harmonic_baselines:
+        block = (scan or {}).get(method)
+        p = block.get("period") if isinstance(block, dict) else None
+        if p is None or not (np.isfinite(p) and p > 0 and np.isfinite(period) and period > 0):
+            continue
+        rel = relation(float(p), float(period), config.harmonic_tolerance)
+        if rel in ("P/2", "2P"):
+            out.append({"method": method, "period": float(p), "relation": rel})
+    return out
+
+
+def harmonic_check(posterior: Posterior, reference: float, config: DetectionConfig, *,
+                   median: float | None = None, scan: dict | None = None) -> dict:
+    """Is half or twice the period a credible alternative?
+
+    Three sources, all reported: the posterior probability of periods near
+    ``reference``/2 and 2 x ``reference`` in the weighted draws (all sampled
+    modes); the Laplace probabilities of modes the optimiser found there but that
+    were not competitive enough to be sampled; and the baseline periods of
+    ``config.harmonic_baselines`` (from ``scan``) that lie near half or twice the
+    reported period ``median`` (:func:`baseline_harmonics`). The flag is raised when
+    either probability exceeds ``config.harmonic_probability`` (``flag_posterior``)
+    or such a baseline exists (``flag_baselines``).
+
+    The baseline clause catches what the posterior cannot: a posterior settled at
+    half the true period whose modes hold no probability near the truth (two spot
+    groups on opposite hemispheres, spots living a few rotations), while the ACF,
+    which compares alternate dips, finds the full period.
     """
     period = posterior.physical()["period"]
     w = posterior.weights
@@ -298,14 +359,19 @@ def harmonic_check(posterior: Posterior, reference: float, config: DetectionConf
                 lap_half += float(p)
             elif rel == "2P":
                 lap_double += float(p)
-    flag = max(p_half, p_double, lap_half, lap_double) > config.harmonic_probability
+    flag_posterior = max(p_half, p_double, lap_half, lap_double) > config.harmonic_probability
+    baselines = baseline_harmonics(scan, reference if median is None else median, config)
     return {
         "reference_period": float(reference),
         "probability_half": p_half,
         "probability_double": p_double,
         "unsampled_laplace_probability_half": lap_half,
         "unsampled_laplace_probability_double": lap_double,
-        "flag": bool(flag),
+        "baselines": baselines,
+        "baseline_methods": list(config.harmonic_baselines),
+        "flag_posterior": bool(flag_posterior),
+        "flag_baselines": bool(baselines),
+        "flag": bool(flag_posterior or baselines),
         "threshold": config.harmonic_probability,
         "tolerance": config.harmonic_tolerance,
     }
@@ -664,7 +730,9 @@ def summarise(
     return StarSummary(
         identifier=identifier, period=period, amplitude_ppt=amplitude, coherence_days=coh_d,
         coherence_rotations=coh_r, modes=modes,
-        harmonic=harmonic_check(posterior, reference, config), detection=det,
+        harmonic=harmonic_check(posterior, reference, config, median=period["median"],
+                                scan=scan),
+        detection=det,
         detected=det["detected"], converged=posterior.converged, diagnostics=diagnostics,
         nuisance=nuisance, baselines=_baselines(scan, period, config),
         sampling=sampling_check(phys["period"], w, period["median"], scan, config),

@@ -220,3 +220,5 @@ def test_harmonic_warning_names_the_alternative_modes():
                                       "probability 0.08 (Laplace, not sampled))")
     summary.modes = modes[:1]
     assert _alternatives(summary) == ""
+    summary.harmonic["baselines"] = [{"method": "acf", "period": 14.02, "relation": "2P"}]
+    assert _alternatives(summary) == " (ACF at 2P: 14.02 d)"

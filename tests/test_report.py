@@ -79,6 +79,17 @@ def test_star_page_explains_the_sampling_warning(tmp_path):
     assert "Sampling warning" in page and "0.9973 d" in page and "0.8 of its probability" in page
 
 
+def test_star_page_names_a_baseline_behind_the_harmonic_warning(tmp_path):
+    folder = _star_folder(tmp_path, "Kestrel-9", 1.53, harmonic=True)
+    summary = json.loads((folder / "summary.json").read_text())
+    summary["harmonic"].update(flag_posterior=False, flag_baselines=True, baselines=[
+        {"method": "acf", "period": 2.98, "relation": "2P"}])
+    (folder / "summary.json").write_text(json.dumps(summary))
+    page = write_star_page(folder).read_text()
+    assert "the ACF period (2.98 d) is near 2P of the reported one" in page
+    assert "probability to a period near half" not in page  # not the posterior's doing
+
+
 def test_lookup_dotted_paths():
     d = {"a": {"b": {"c": 3}}}
     assert lookup(d, "a.b.c") == 3

@@ -15,6 +15,7 @@ from rotinfer.sample import EnsembleDiagnostics, EnsembleRun, Laplace, Mode, Pos
 from rotinfer.sample.settings import SamplerConfig
 from rotinfer.summarise import (
     DetectionConfig,
+    baseline_harmonics,
     detection,
     harmonic_check,
     hdr_intervals,
@@ -113,6 +114,37 @@ def test_harmonic_check_flags_substantial_double(rng):
     assert h["flag"]
     clean = _posterior(rng, [(3.0, 0.995), (6.0, 0.005)])
     assert not harmonic_check(clean, 3.0, cfg)["flag"]
+
+
+def test_harmonic_check_baseline_clause(rng):
+    # Two spot groups on opposite hemispheres: a period at half the truth while the ACF,
+    # which compares alternate dips, finds the full one (McQuillan et al. 2013; the
+    # ACF's two-dip rule is common practice). A clean posterior at 3.0 d is flagged by
+    # a baseline near 2P or P/2 of the reported period, and only by the methods asked for.
+    cfg = DetectionConfig()
+    clean = _posterior(rng, [(3.0, 1.0)])
+    h = harmonic_check(clean, 3.0, cfg, median=3.0, scan={"acf": {"period": 6.2},
+                                                          "lomb_scargle": {"period": 1.49}})
+    assert h["flag"] and h["flag_baselines"] and not h["flag_posterior"]
+    assert h["baselines"] == [{"method": "acf", "period": 6.2, "relation": "2P"}]
+    assert h["baseline_methods"] == ["acf"]
+    both = DetectionConfig(harmonic_baselines=("acf", "lomb_scargle"))
+    assert [b["relation"] for b in harmonic_check(
+        clean, 3.0, both, median=3.0, scan={"acf": {"period": 6.2},
+                                            "lomb_scargle": {"period": 1.49}})["baselines"]
+            ] == ["2P", "P/2"]
+    # agreeing, unrelated (3P is not a half-or-double trap), missing or absent baselines
+    for scan in ({"acf": {"period": 3.05}}, {"acf": {"period": 9.0}},
+                 {"acf": {"period": None}}, {"acf": {"period": float("nan")}}, None):
+        h = harmonic_check(clean, 3.0, cfg, median=3.0, scan=scan)
+        assert not h["flag"] and h["baselines"] == []
+    # the tolerance is the harmonic one: 10 % either side of 2P
+    assert baseline_harmonics({"acf": {"period": 6.55}}, 3.0, cfg)
+    assert not baseline_harmonics({"acf": {"period": 6.7}}, 3.0, cfg)
+    assert not baseline_harmonics({"acf": {"period": 6.2}}, 3.0,
+                                  DetectionConfig(harmonic_baselines=()))
+    with pytest.raises(ConfigError, match="'acf', 'lomb_scargle'"):
+        DetectionConfig(harmonic_baselines=("bls",))
 
 
 def test_detection_statistics():

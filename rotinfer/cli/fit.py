@@ -108,7 +108,9 @@ def fit(settings, files, out_dir, config_path, seed, **opts):
 
 
 def _alternatives(summary) -> str:
-    """' (P/2 = 3.54 d: probability 0.49)' for the harmonic modes behind the warning."""
+    """' (P/2 = 3.54 d: probability 0.49; ACF at 2P: 7.1 d)': what is behind the warning."""
+    from ..summarise import BASELINE_NAMES
+
     limit = summary.harmonic["threshold"]
     parts = []
     for m in summary.modes:
@@ -118,4 +120,6 @@ def _alternatives(summary) -> str:
         if p is not None and p > limit:
             parts.append(f"{m['relation']} = {m['period']:.4g} d: probability {p:.2f}"
                          + ("" if m["sampled"] else " (Laplace, not sampled)"))
+    for b in summary.harmonic.get("baselines", []):
+        parts.append(f"{BASELINE_NAMES[b['method']]} at {b['relation']}: {b['period']:.4g} d")
     return f" ({'; '.join(parts)})" if parts else ""

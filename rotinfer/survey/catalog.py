@@ -84,7 +84,11 @@ CATALOG_COLUMNS: tuple[CatalogColumn, ...] = (
     _c("detection_delta_bic", "float", None,
        "Detection: BIC of the model without rotation minus BIC with it", "detection.delta_bic"),
     _c("harmonic_warning", "bool", None,
-       "Whether half or twice the period is a credible alternative", "harmonic.flag"),
+       "Whether half or twice the period is a credible alternative (posterior probability "
+       "there, or a baseline period there)", "harmonic.flag"),
+    _c("harmonic_baseline", "bool", None,
+       "Whether a baseline period ([detection] harmonic_baselines; the ACF by default) lies "
+       "near half or twice the period", "harmonic.flag_baselines"),
     _c("probability_half", "float", None, "Posterior probability of a period near P/2",
        "harmonic.probability_half"),
     _c("probability_double", "float", None, "Posterior probability of a period near 2P",
