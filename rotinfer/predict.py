@@ -1,13 +1,17 @@
 """The Gaussian-process predictive distribution at new times, in bounded memory.
 
 celerite2 computes the predictive *mean* at M new times in O(N + M), but the
-predictive *variance* through a dense N x M matrix of kernel values and its
-solve against the data covariance: for a four-year 2-minute light curve
-(N ~ 10^6) and a plotting grid of a few thousand times that is tens of
-gigabytes. :func:`predict` therefore evaluates the new times in chunks whose
-N x M work arrays stay below ``max_bytes``; the answer is the same as one dense
-call (the predictive distribution at each new time depends only on the data,
-not on the other new times).
+predictive *variance* needs a dense N x M matrix of kernel values and its solve
+against the data covariance: for a four-year 2-minute light curve (N ~ 10^6) and a
+plotting grid of a few thousand times that is tens of gigabytes. :func:`predict`
+therefore evaluates the new times in chunks whose N x M work arrays stay below
+``max_bytes``; the answer is the same as one dense call (the predictive
+distribution at each new time depends only on the data, not on the other new
+times). The kernel matrix is filled here, term by term in place, from the
+kernel's celerite coefficients: celerite2's own ``predict(..., return_var=True)``
+builds about 18 N x M temporaries for the rotation model's three oscillators
+(measured with ``benchmarks/bench_memory.py``), which made a 64-MB budget a
+600-MB peak.
 
 The predictive equations are the standard ones (Rasmussen & Williams 2006,
 eqs. 2.23-2.24): with K the kernel matrix of the data, D the diagonal of the
@@ -40,8 +44,10 @@ __all__ = ["Prediction", "chunk_length", "predict", "predict_arrays"]
 
 #: Default memory budget of one chunk's work arrays, bytes (64 MB).
 DEFAULT_MAX_BYTES = 64 * 2**20
-# Work arrays of one chunk: the N x M kernel matrix and its solve (two float64 arrays).
-_ARRAYS_PER_CHUNK = 2
+# Work arrays of one chunk, float64 N x M: while the kernel matrix is filled, the lags,
+# the matrix and three scratch arrays (:func:`_cross_covariance`); then the matrix and
+# its solve.
+_ARRAYS_PER_CHUNK = 5
 
 
 @dataclass(frozen=True)
@@ -83,6 +89,41 @@ def chunk_length(n_data: int, *, max_bytes: float = DEFAULT_MAX_BYTES) -> int:
     """
     per_time = _ARRAYS_PER_CHUNK * 8 * max(int(n_data), 1)
     return max(1, int(max_bytes // per_time))
+
+
+def _cross_covariance(coefficients, time, new_time) -> np.ndarray:
+    """Kernel values k(|t_n - t*_m|), shape (N, M), from celerite coefficients, in place.
+
+    A celerite kernel is a sum of terms a e^{-c tau} (real) and
+    e^{-c tau} (a cos(d tau) + b sin(d tau)) (complex; Foreman-Mackey et al. 2017,
+    eq. 7); ``coefficients`` is the tuple ``(ar, cr, ac, bc, cc, dc)`` of
+    ``celerite2.terms.Term.get_coefficients``. At most five N x M arrays exist at once.
+    """
+    ar, cr, ac, bc, cc, dc = (np.atleast_1d(np.asarray(c, dtype=np.float64))
+                              for c in coefficients)
+    tau = np.abs(np.subtract.outer(time, new_time))
+    k = np.zeros_like(tau)
+    decay = np.empty_like(tau)
+    for a, c in zip(ar, cr, strict=True):
+        np.multiply(tau, -c, out=decay)
+        np.exp(decay, out=decay)
+        decay *= a
+        k += decay
+    if ac.size:
+        phase = np.empty_like(tau)
+        sine = np.empty_like(tau)
+        for a, b, c, d in zip(ac, bc, cc, dc, strict=True):
+            np.multiply(tau, -c, out=decay)
+            np.exp(decay, out=decay)
+            np.multiply(tau, d, out=phase)
+            np.sin(phase, out=sine)
+            np.cos(phase, out=phase)
+            phase *= a
+            sine *= b
+            phase += sine
+            phase *= decay
+            k += phase
+    return k
 
 
 def predict_arrays(kernel, time, flux, variance, new_time, *, mean: float = 0.0,
@@ -139,11 +180,17 @@ def predict_arrays(kernel, time, flux, variance, new_time, *, mean: float = 0.0,
     sorted_t = tn[order]
     mu = np.empty(tn.size)
     sd = np.empty(tn.size)
+    coefficients = kernel.get_coefficients()
+    k0 = float(np.sum(coefficients[0]) + np.sum(coefficients[2]))  # k(0): the a's
     step = chunk_length(t.size, max_bytes=max_bytes)
     n_chunks = 0
     for start in range(0, sorted_t.size, step):
         part = sorted_t[start:start + step]
-        m, v = gp.predict(y, t=part, return_var=True)
+        m = gp.predict(y, t=part)  # O(N + M)
+        k_star = _cross_covariance(coefficients, t, part)
+        # R&W eq. 2.24: k(0) - k*^T (K + D)^-1 k*, column by column
+        v = k0 - np.einsum("nm,nm->m", k_star, gp.apply_inverse(k_star))
+        del k_star
         idx = order[start:start + step]
         mu[idx] = m
         # Round-off can make the variance very slightly negative where the data pin it down.
