@@ -106,6 +106,15 @@ def test_injection_recovery_slice(tmp_path):
     # ... but not into a run with another seed.
     assert bench.load_carried(stars, bench._run_key(2, 1, str(cfg))) is None
 
+    # A refit of a population star with nothing changed (bench_refit.py, the workbench for
+    # candidate defaults) is the population's fit, number for number: same light curve,
+    # configuration and seed (the reproducibility the pipeline promises).
+    refit = _load("bench_refit")
+    again = refit.fit_stars(["00001-easy"], tmp_path / "work", cfg, {},
+                            tmp_path / "refit_same_stars.ecsv", seed=1)
+    assert float(again["period"][0]) == float(easy["period"])
+    assert bool(again["detected"][0]) == bool(easy["detected"])
+
 
 def test_committed_population_table_is_still_carried():
     # The population benchmark grows across sessions only while its stars' key matches:
