@@ -61,17 +61,39 @@ def _modes_text(summary: dict) -> str:
                      if m["sampled"])
 
 
+def _fit_one(name: str, work: Path, cfg, out_dir: Path, seed: int) -> tuple:
+    """Fit one population star; its table row (run in a worker process with --jobs)."""
+    from rotinfer.errors import ConvergenceWarning
+    from rotinfer.io import read_stars
+    from rotinfer.pipeline import analyse_star
+    from rotinfer.survey.tasks import star_seed
+
+    number, cls = name.split("-")
+    lc = read_stars([str(work / "lc" / cls / f"kestrel-{number}.fits")])[0]
+    start = time.process_time()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        s = analyse_star(lc, config=cfg, seed=star_seed(seed, name),
+                         out_dir=out_dir / name, figures=False).to_dict()
+    cpu = time.process_time() - start
+    p = s["period"]
+    return (name, p["median"], *p["interval_68"], s["detection"]["detected"],
+            s["detection"]["delta_bic"], s["diagnostics"]["converged"],
+            s["harmonic"]["flag"], _modes_text(s), cpu)
+
+
 def fit_stars(names, work: Path, config: Path, overrides: dict, table: Path, *,
-              seed: int = SURVEY_SEED) -> Table:
+              seed: int = SURVEY_SEED, jobs: int = 1) -> Table:
     """Fit each star not yet in ``table`` under ``config`` + ``overrides``; the table.
 
     ``seed`` is the population run's survey seed: with no overrides a star's fit is the
-    one in the population table, number for number.
+    one in the population table, number for number. ``jobs`` worker processes fit stars
+    side by side (each star's result does not depend on it); the table is written by
+    this process after every finished star, so an interrupted run resumes.
     """
-    from rotinfer.errors import ConvergenceWarning
-    from rotinfer.io import read_stars
-    from rotinfer.pipeline import analyse_star, load_run_config
-    from rotinfer.survey.tasks import star_seed
+    from concurrent.futures import ProcessPoolExecutor, as_completed
+
+    from rotinfer.pipeline import load_run_config
 
     cfg = load_run_config(config, overrides=overrides)
     key = options_hash(cfg)
@@ -83,29 +105,28 @@ def fit_stars(names, work: Path, config: Path, overrides: dict, table: Path, *,
         else:
             print(f"{table}: made under other options; starting afresh", file=sys.stderr)
     have = {r[0] for r in rows}
-    for name in names:
-        if name in have:
-            continue
-        number, cls = name.split("-")
-        lc = read_stars([str(work / "lc" / cls / f"kestrel-{number}.fits")])[0]
-        start = time.process_time()
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", ConvergenceWarning)
-            s = analyse_star(lc, config=cfg, seed=star_seed(seed, name),
-                             out_dir=work / "refit" / table.stem / name,
-                             figures=False).to_dict()
-        cpu = time.process_time() - start
-        p = s["period"]
-        rows.append((name, p["median"], *p["interval_68"], s["detection"]["detected"],
-                     s["detection"]["delta_bic"], s["diagnostics"]["converged"],
-                     s["harmonic"]["flag"], _modes_text(s), cpu))
+    todo = [n for n in dict.fromkeys(names) if n not in have]
+    out_dir = work / "refit" / table.stem
+
+    def keep(row):
+        rows.append(row)
         out = Table(rows=rows, names=COLUMNS)
         out.meta["options_hash"] = key
         out.write(table, format="ascii.ecsv", overwrite=True)
-        print(f"{name}: {p['median']:.3f} d ({_modes_text(s)}), {cpu:.0f} CPU s",
-              file=sys.stderr, flush=True)
-    out = Table(rows=rows, names=COLUMNS) if rows else Table(names=COLUMNS)
-    return out
+        print(f"{row[0]}: {row[1]:.3f} d ({row[8]}), {row[9]:.0f} CPU s "
+              f"[{len(rows)} in the table]", file=sys.stderr, flush=True)
+
+    if jobs <= 1:
+        for name in todo:
+            keep(_fit_one(name, work, cfg, out_dir, seed))
+    else:
+        with ProcessPoolExecutor(max_workers=jobs) as pool:
+            futures = [pool.submit(_fit_one, n, work, cfg, out_dir, seed) for n in todo]
+            for f in as_completed(futures):
+                keep(f.result())
+    order = {n: i for i, n in enumerate(names)}
+    rows.sort(key=lambda r: order.get(r[0], len(order)))
+    return Table(rows=rows, names=COLUMNS) if rows else Table(names=COLUMNS)
 
 
 def report(stars: Table, work: Path, population: Path, header: list[str]) -> str:
@@ -146,6 +167,8 @@ def main(argv=None) -> int:
     ap.add_argument("--work", default=str(HERE / "work" / "population"))
     ap.add_argument("--config", default=str(HERE / "population_bench.toml"))
     ap.add_argument("--population", default=str(RESULTS / "population_stars.ecsv"))
+    ap.add_argument("--jobs", type=int, default=1,
+                    help="worker processes fitting stars side by side (default 1)")
     ap.add_argument("--seed", type=int, default=SURVEY_SEED,
                     help="the population run's survey seed (default 7)")
     args = ap.parse_args(argv)
@@ -153,7 +176,8 @@ def main(argv=None) -> int:
     if not (work / "lc").is_dir():
         raise SystemExit(f"{work}: no simulated population here; run bench_population.py")
     stars = fit_stars(args.stars, work, Path(args.config), _overrides(args.set),
-                      RESULTS / f"refit_{args.tag}_stars.ecsv", seed=args.seed)
+                      RESULTS / f"refit_{args.tag}_stars.ecsv", seed=args.seed,
+                       jobs=args.jobs)
 
     from rotinfer import __version__
 

@@ -114,6 +114,10 @@ def test_injection_recovery_slice(tmp_path):
                             tmp_path / "refit_same_stars.ecsv", seed=1)
     assert float(again["period"][0]) == float(easy["period"])
     assert bool(again["detected"][0]) == bool(easy["detected"])
+    # ... also when fitted in a worker process (--jobs).
+    pooled = refit.fit_stars(["00001-easy"], tmp_path / "work", cfg, {},
+                             tmp_path / "refit_pooled_stars.ecsv", seed=1, jobs=2)
+    assert float(pooled["period"][0]) == float(easy["period"])
 
 
 def test_committed_population_table_is_still_carried():
