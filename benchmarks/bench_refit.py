@@ -156,7 +156,44 @@ def report(stars: Table, work: Path, population: Path, header: list[str]) -> str
             f"{r['modes']} | {'yes' if r['converged'] else 'no'} | {float(r['cpu_time']):.0f} |")
     lines += ["", f"Within 10 % of the true range: {counts['before']} of {len(stars)} in the "
                   f"population table, {counts['after']} with the override."]
+    lines += _class_lines(stars, truth, before)
     return "\n".join(lines) + "\n"
+
+
+def _class_lines(stars: Table, truth: dict, before: dict) -> list[str]:
+    """Per class, population table -> override: within 10 %, harmonic errors, detected,
+    converged (harmonic error: within 10 % of half or twice the true range, as in
+    ``bench_population.py``)."""
+    def verdicts(period, lo, hi):
+        hit = bool(_within([period], lo, hi)[0])
+        harm = not hit and bool(_within([period], 0.5 * lo, 0.5 * hi)[0]
+                                or _within([period], 2 * lo, 2 * hi)[0])
+        return hit, harm
+
+    tally: dict = {}
+    for r in stars:
+        name = str(r["name"])
+        old = before.get(name)
+        if old is None:
+            continue
+        tr = truth[name]
+        lo, hi = float(tr["period_min"]), float(tr["period_max"])
+        cls = name.split("-")[1]
+        t = tally.setdefault(cls, np.zeros((2, 4), int))
+        for i, row in enumerate((old, r)):
+            hit, harm = verdicts(float(row["period"]), lo, hi)
+            t[i] += (hit, harm, bool(row["detected"]), bool(row["converged"]))
+    if not tally:
+        return []
+    lines = ["", "Per class, population table → with the override (stars of this table only):",
+             "", "| class | stars | within 10 % | harmonic errors | detected | converged |",
+             "|---|---:|---|---|---|---|"]
+    for cls, t in tally.items():
+        n = sum(1 for r in stars if str(r["name"]).endswith("-" + cls)
+                and str(r["name"]) in before)
+        lines.append(f"| {cls} | {n} | " + " | ".join(
+            f"{t[0, j]} → {t[1, j]}" for j in range(4)) + " |")
+    return lines
 
 
 def main(argv=None) -> int:
