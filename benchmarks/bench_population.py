@@ -115,6 +115,12 @@ def _within(p, lo, hi, tol=0.1):
     return np.isfinite(p) & (p >= (1 - tol) * lo) & (p <= (1 + tol) * hi)
 
 
+def _harmonic(p, lo, hi, tol=0.1):
+    """Harmonic errors: not within ``tol`` of [lo, hi] but within it of half or twice it."""
+    return ~_within(p, lo, hi, tol) & (_within(p, 0.5 * lo, 0.5 * hi, tol)
+                                       | _within(p, 2 * lo, 2 * hi, tol))
+
+
 def _overlaps(a, b, lo, hi):
     return (np.asarray(a) <= hi) & (np.asarray(b) >= lo)
 
@@ -266,7 +272,7 @@ def summarise(work: Path, out: Path, figure: Path, header: list[str], *,
     cpu = _filled(t["cpu_time"])
     signal = np.array(t["spotted"], dtype=bool) & (np.asarray(t["n_spots"]) > 0) & np.isfinite(lo)
     hit = _within(p, lo, hi)
-    harmonic = ~hit & (_within(p, 0.5 * lo, 0.5 * hi) | _within(p, 2 * lo, 2 * hi))
+    harmonic = _harmonic(p, lo, hi)
     cov68 = _overlaps(_filled(t["period_lo68"]), _filled(t["period_hi68"]), lo, hi)
     cov95 = _overlaps(_filled(t["period_lo95"]), _filled(t["period_hi95"]), lo, hi)
     classes = np.asarray(t["category"])
