@@ -552,3 +552,60 @@ def test_fit_with_auto_backgrounds_resumes_with_the_chosen_model(tmp_path, monke
         again = fit(star, [4.0], config=cfg, seed=3, checkpoint_path=path)
     assert again.model.background_suffixes == ("", "2")
     assert np.array_equal(first.samples, again.samples)
+
+
+def test_checkpoint_resumes_under_another_stopping_rule(tmp_path, monkeypatch):
+    # The stopping rule decides where a chain ends, never what it holds (each ensemble's
+    # random state is stored per block), so a run that hit its cap resumes under a
+    # stricter rule instead of starting over; a checkpoint labelled as earlier versions
+    # did (the rule inside the fingerprint) is resumed when its rule is the one asked
+    # for, and relabelled. (The draws must continue the stored ones exactly.)
+    import dataclasses
+
+    import h5py
+
+    from rotinfer.model import RotationModel
+    from rotinfer.sample import fit
+    from rotinfer.sample import posterior as post
+
+    rng = np.random.default_rng(5)
+    t = np.sort(rng.uniform(0.0, 40.0, 300))
+    base = RotationModel(t, np.ones(300), np.full(300, 3e-4), period_range=(0.5, 15.0))
+    theta = base.pack(period=4.0, sigma=2e-3, coherence_rotations=20.0, f=0.3, r=0.5,
+                      jitter=1e-5, mean=1.0, background_sigma=3e-4, background_tau=0.1)
+    star = dataclasses.replace(base, flux=base.simulate(theta, rng))
+    short = SamplerConfig(n_walkers=24, check_every=50, max_steps=50, warmup_steps=50,
+                          starts_per_period=1, max_sampled_modes=1, tau_multiple=1e4)
+    path = tmp_path / "chains.h5"
+    with pytest.warns(ConvergenceWarning):
+        fit(star, [4.0], config=short, seed=3, checkpoint_path=path)
+    with h5py.File(path, "r") as f:
+        stored = f["mode0/ensemble0/chain"][...]
+
+    def no_search(*args, **kwargs):
+        raise AssertionError("modes searched again instead of read from the checkpoint")
+
+    monkeypatch.setattr("rotinfer.sample.posterior.find_modes", no_search)
+    stricter = dataclasses.replace(short, max_steps=100, tau_multiple=2e4, rhat_max=1.001,
+                                   burn_in_tau=2.0, tau_rtol=0.01, stuck_ratio=0.2)
+    with pytest.warns(ConvergenceWarning):
+        fit(star, [4.0], config=stricter, seed=3, checkpoint_path=path)
+    with h5py.File(path, "r") as f:
+        longer = f["mode0/ensemble0/chain"][...]
+    assert longer.shape[0] == 100 and np.array_equal(longer[:50], stored)
+
+    # An earlier version's label for the same fit (its rule inside the hash) is accepted
+    # and replaced by the current one; a setting that shapes the chains still is not.
+    legacy = post._fingerprint(star, [4.0], stricter, 3,
+                               leave_out=post._NOT_IN_LEGACY_FINGERPRINT)
+    current = post._fingerprint(star, [4.0], stricter, 3)
+    assert legacy != current
+    with h5py.File(path, "a") as f:
+        f.attrs["fingerprint"] = legacy
+    with pytest.warns(ConvergenceWarning):
+        fit(star, [4.0], config=stricter, seed=3, checkpoint_path=path)
+    with h5py.File(path, "r") as f:
+        assert f.attrs["fingerprint"] == current
+        assert np.array_equal(f["mode0/ensemble0/chain"][...], longer)
+    other = dataclasses.replace(stricter, warmup_steps=60)
+    assert post._fingerprint(star, [4.0], other, 3) != current

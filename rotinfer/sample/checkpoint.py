@@ -60,6 +60,9 @@ class Checkpoint:
         File to use (created with its folder if missing).
     fingerprint : str
         Identity of the fit; a file with another fingerprint is replaced.
+    also_accept : sequence of str, optional
+        Older forms of the same identity (fingerprints computed as an earlier version
+        did): a file carrying one is resumed and relabelled with ``fingerprint``.
 
     Attributes
     ----------
@@ -67,9 +70,11 @@ class Checkpoint:
         True when an existing file with the same fingerprint was found.
     """
 
-    def __init__(self, path, *, fingerprint: str):
+    def __init__(self, path, *, fingerprint: str, also_accept=()):
         self.path = Path(path)
         self.fingerprint = str(fingerprint)
+        accepted = {self.fingerprint, *map(str, also_accept)}
+        relabel = False
         self.resumed = False
         self.path.parent.mkdir(parents=True, exist_ok=True)
         if self.path.exists():
@@ -78,13 +83,17 @@ class Checkpoint:
                     ok = (
                         f.attrs.get("format") == FORMAT
                         and int(f.attrs.get("format_version", -1)) == FORMAT_VERSION
-                        and f.attrs.get("fingerprint") == self.fingerprint
+                        and f.attrs.get("fingerprint") in accepted
                     )
+                    relabel = ok and f.attrs.get("fingerprint") != self.fingerprint
             except OSError:
                 ok = False
                 log.warning("%s: unreadable checkpoint, starting the fit afresh", self.path)
             if ok:
                 self.resumed = True
+                if relabel:
+                    with h5py.File(self.path, "a") as f:
+                        f.attrs["fingerprint"] = self.fingerprint
                 return
             log.info("%s: checkpoint is for another fit; replacing it", self.path)
         with h5py.File(self.path, "w") as f:

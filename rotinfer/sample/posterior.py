@@ -48,12 +48,18 @@ from .settings import SamplerConfig
 
 __all__ = ["Posterior", "SampledMode", "fit", "importance_log_evidence", "optimise_star"]
 
-# Sampler settings that do not change the chains (a checkpoint made with other
-# values of these can be resumed, e.g. to extend a run that hit its cap).
-# Settings that do not shape the chains' content (the cap, the evidence draws, the
-# noise allowance of the stability clause, added later) stay out, so a changed value
-# resumes a checkpoint instead of starting over.
-_NOT_IN_FINGERPRINT = ("max_steps", "importance_draws", "tau_noise_z", "period_precision")
+# Sampler settings that do not shape the chains' content stay out of the fingerprint,
+# so a checkpoint made with other values of them is resumed instead of started over:
+# the cap (extend a run that hit it), the evidence draws, the precision clause, and
+# the whole stopping rule (length in tau, tau stability, R-hat, burn-in, stuck walkers:
+# they decide where a chain stops, never what it holds, since every ensemble's random
+# state is stored per block), e.g. to continue a run under a stricter rule.
+_NOT_IN_FINGERPRINT = ("max_steps", "importance_draws", "tau_noise_z", "period_precision",
+                       "tau_multiple", "tau_rtol", "rhat_max", "burn_in_tau", "stuck_ratio")
+# What earlier versions left out: their checkpoints are still resumed (and relabelled)
+# when their stopping rule is the one asked for now.
+_NOT_IN_LEGACY_FINGERPRINT = ("max_steps", "importance_draws", "tau_noise_z",
+                              "period_precision")
 #: Model options that do not change the periodic model's chains (the detection test's
 #: comparison model only), so checkpoints resume across them.
 _MODEL_NOT_IN_FINGERPRINT = ("max_comparison_backgrounds",)
@@ -178,11 +184,12 @@ def importance_log_evidence(log_prob, draws, *, n: int, rng: np.random.Generator
     return log_z, rel_se, ess
 
 
-def _fingerprint(model: RotationModel, periods, config: SamplerConfig, seed) -> str:
+def _fingerprint(model: RotationModel, periods, config: SamplerConfig, seed,
+                 leave_out=_NOT_IN_FINGERPRINT) -> str:
     h = hashlib.sha256()
     for arr in (model.time, model.flux, model.flux_err):
         h.update(np.ascontiguousarray(arr).tobytes())
-    sampler = {k: v for k, v in dataclass_to_dict(config).items() if k not in _NOT_IN_FINGERPRINT}
+    sampler = {k: v for k, v in dataclass_to_dict(config).items() if k not in leave_out}
     model_cfg = {k: v for k, v in dataclass_to_dict(model.config).items()
                  if k not in _MODEL_NOT_IN_FINGERPRINT}
     meta = {
@@ -304,7 +311,10 @@ def fit(
 
     ckpt = None
     if checkpoint_path is not None:
-        ckpt = Checkpoint(checkpoint_path, fingerprint=_fingerprint(model, periods, config, seed))
+        ckpt = Checkpoint(
+            checkpoint_path, fingerprint=_fingerprint(model, periods, config, seed),
+            also_accept=(_fingerprint(model, periods, config, seed,
+                                      leave_out=_NOT_IN_LEGACY_FINGERPRINT),))
     stored = ckpt.load_json("modes") if ckpt is not None and ckpt.resumed else None
     auto = model.config.periodic_backgrounds == "auto"
     if stored is not None:
