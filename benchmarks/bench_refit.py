@@ -19,6 +19,13 @@ Usage::
 
 Writes ``benchmarks/results/refit_<tag>.md``: each star before (the population table)
 and after (the override), against its true period range.
+
+``--continue-from DIR`` starts each star from its stored chains ``DIR/<star>/chains.h5``
+(a population work folder's ``survey/stars``) instead of from nothing: with a higher
+``sampler.max_steps`` the chains that hit the population's cap are extended, which the
+checkpoint allows because the cap does not enter its fingerprint. A star whose stored
+chains do not match the options is refitted from the start, and the report says so; the
+CPU column is then the continuation's alone.
 """
 
 from __future__ import annotations
@@ -27,6 +34,7 @@ import argparse
 import datetime
 import os
 import platform
+import shutil
 import sys
 import time
 import tomllib
@@ -41,7 +49,8 @@ HERE = Path(__file__).resolve().parent
 RESULTS = HERE / "results"
 SURVEY_SEED = 7
 COLUMNS = ("name", "period", "period_lo68", "period_hi68", "detected",
-           "detection_delta_bic", "converged", "harmonic_warning", "modes", "cpu_time")
+           "detection_delta_bic", "converged", "harmonic_warning", "modes", "cpu_time",
+           "continued")
 
 
 def _overrides(items) -> dict:
@@ -61,8 +70,30 @@ def _modes_text(summary: dict) -> str:
                      if m["sampled"])
 
 
-def _fit_one(name: str, work: Path, cfg, out_dir: Path, seed: int) -> tuple:
-    """Fit one population star; its table row (run in a worker process with --jobs)."""
+def _continued_from(path: Path, source=None):
+    """Mark a copied checkpoint with its source (``source`` given), or read the mark.
+
+    A checkpoint that is resumed is appended to and keeps the mark; one that does not
+    match the fit is rewritten from nothing and loses it.
+    """
+    import h5py
+
+    if not path.exists():
+        return None
+    with h5py.File(path, "a" if source is not None else "r") as f:
+        if source is not None:
+            f.attrs["continued_from"] = str(source)
+        return f.attrs.get("continued_from")
+
+
+def _fit_one(name: str, work: Path, cfg, out_dir: Path, seed: int,
+             continue_from: Path | None = None) -> tuple:
+    """Fit one population star; its table row (run in a worker process with --jobs).
+
+    With ``continue_from``, the star's stored chains are copied in first (unless its
+    folder already has some) and the row's ``continued`` says whether the fit resumed
+    from them rather than starting afresh (a mark on the copy survives only a resume).
+    """
     from rotinfer.errors import ConvergenceWarning
     from rotinfer.io import read_stars
     from rotinfer.pipeline import analyse_star
@@ -70,6 +101,12 @@ def _fit_one(name: str, work: Path, cfg, out_dir: Path, seed: int) -> tuple:
 
     number, cls = name.split("-")
     lc = read_stars([str(work / "lc" / cls / f"kestrel-{number}.fits")])[0]
+    chains = out_dir / name / "chains.h5"
+    source = continue_from / name / "chains.h5" if continue_from is not None else None
+    if source is not None and source.exists() and not chains.exists():
+        chains.parent.mkdir(parents=True, exist_ok=True)
+        shutil.copy2(source, chains)
+        _continued_from(chains, source)
     start = time.process_time()
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ConvergenceWarning)
@@ -79,17 +116,21 @@ def _fit_one(name: str, work: Path, cfg, out_dir: Path, seed: int) -> tuple:
     p = s["period"]
     return (name, p["median"], *p["interval_68"], s["detection"]["detected"],
             s["detection"]["delta_bic"], s["diagnostics"]["converged"],
-            s["harmonic"]["flag"], _modes_text(s), cpu)
+            s["harmonic"]["flag"], _modes_text(s), cpu,
+            source is not None and _continued_from(chains) == str(source))
 
 
 def fit_stars(names, work: Path, config: Path, overrides: dict, table: Path, *,
-              seed: int = SURVEY_SEED, jobs: int = 1) -> Table:
+              seed: int = SURVEY_SEED, jobs: int = 1,
+              continue_from: Path | None = None) -> Table:
     """Fit each star not yet in ``table`` under ``config`` + ``overrides``; the table.
 
     ``seed`` is the population run's survey seed: with no overrides a star's fit is the
     one in the population table, number for number. ``jobs`` worker processes fit stars
     side by side (each star's result does not depend on it); the table is written by
     this process after every finished star, so an interrupted run resumes.
+    ``continue_from``: a folder of stored chains per star to extend (see the module's
+    docstring).
     """
     from concurrent.futures import ProcessPoolExecutor, as_completed
 
@@ -101,7 +142,9 @@ def fit_stars(names, work: Path, config: Path, overrides: dict, table: Path, *,
     if table.exists():
         kept = Table.read(table, format="ascii.ecsv")
         if kept.meta.get("options_hash") == key:
-            rows = [tuple(r[c] for c in COLUMNS) for r in kept]
+            # (tables written before the "continued" column was added: never continued)
+            rows = [tuple(r[c] if c in kept.colnames else False for c in COLUMNS)
+                    for r in kept]
         else:
             print(f"{table}: made under other options; starting afresh", file=sys.stderr)
     have = {r[0] for r in rows}
@@ -118,10 +161,11 @@ def fit_stars(names, work: Path, config: Path, overrides: dict, table: Path, *,
 
     if jobs <= 1:
         for name in todo:
-            keep(_fit_one(name, work, cfg, out_dir, seed))
+            keep(_fit_one(name, work, cfg, out_dir, seed, continue_from))
     else:
         with ProcessPoolExecutor(max_workers=jobs) as pool:
-            futures = [pool.submit(_fit_one, n, work, cfg, out_dir, seed) for n in todo]
+            futures = [pool.submit(_fit_one, n, work, cfg, out_dir, seed, continue_from)
+                       for n in todo]
             for f in as_completed(futures):
                 keep(f.result())
     order = {n: i for i, n in enumerate(names)}
@@ -186,13 +230,17 @@ def main(argv=None) -> int:
                     help="worker processes fitting stars side by side (default 1)")
     ap.add_argument("--seed", type=int, default=SURVEY_SEED,
                     help="the population run's survey seed (default 7)")
+    ap.add_argument("--continue-from", metavar="DIR",
+                    help="extend each star's stored chains DIR/<star>/chains.h5 "
+                         "(e.g. <work>/survey/stars) instead of starting afresh")
     args = ap.parse_args(argv)
     work = Path(args.work)
     if not (work / "lc").is_dir():
         raise SystemExit(f"{work}: no simulated population here; run bench_population.py")
     stars = fit_stars(args.stars, work, Path(args.config), _overrides(args.set),
                       RESULTS / f"refit_{args.tag}_stars.ecsv", seed=args.seed,
-                      jobs=args.jobs)
+                      jobs=args.jobs,
+                      continue_from=Path(args.continue_from) if args.continue_from else None)
 
     from rotinfer import __version__
 
@@ -205,8 +253,16 @@ def main(argv=None) -> int:
         f"- configuration: {Path(args.config).name} with {', '.join(args.set) or 'nothing'} "
         f"changed; each star's seed of the population benchmark (survey seed {args.seed})",
         f"- command: python benchmarks/bench_refit.py --tag {args.tag} "
-        + "".join(f"--set {s} " for s in args.set) + " ".join(args.stars),
+        + "".join(f"--set {s} " for s in args.set)
+        + (f"--continue-from {args.continue_from} " if args.continue_from else "")
+        + " ".join(args.stars),
     ]
+    if args.continue_from:
+        n = int(np.sum(stars["continued"])) if len(stars) else 0
+        header.append(
+            f"- continued from the stored chains in {args.continue_from}: {n} of "
+            f"{len(stars)} stars resumed their chains (the others were fitted afresh); "
+            "the CPU column is the continuation's alone for a resumed star")
     text = report(stars, work, Path(args.population), header)
     (RESULTS / f"refit_{args.tag}.md").write_text(text)
     print(text)

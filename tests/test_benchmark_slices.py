@@ -118,6 +118,13 @@ def test_injection_recovery_slice(tmp_path):
     pooled = refit.fit_stars(["00001-easy"], tmp_path / "work", cfg, {},
                              tmp_path / "refit_pooled_stars.ecsv", seed=1, jobs=2)
     assert float(pooled["period"][0]) == float(easy["period"])
+    # ... and when it continues the population's stored chains (--continue-from, for
+    # extending chains that hit the cap): resumed, not refitted, and the same numbers.
+    cont = refit.fit_stars(["00001-easy"], tmp_path / "work", cfg, {},
+                           tmp_path / "refit_cont_stars.ecsv", seed=1,
+                           continue_from=tmp_path / "work" / "survey" / "stars")
+    assert bool(cont["continued"][0])
+    assert float(cont["period"][0]) == float(easy["period"])
 
 
 def test_committed_population_table_is_still_carried():
