@@ -183,3 +183,38 @@ def test_ctrl_c_on_the_command_and_rerun_with_the_real_pipeline(tmp_path):
     assert {k: after[k] for k in before} == before
     table = Table.read(out / "catalog.ecsv", format="ascii.ecsv")
     assert len(table) == 4 and len(set(table["identifier"])) == 4
+
+
+def test_a_star_recomputed_with_a_higher_cap_continues_its_chains(tmp_path):
+    # Raising [sampler] max_steps after a star did not converge changes the work hash,
+    # so the survey computes the star again; it starts from the earlier folder's
+    # chains.h5, which the checkpoint continues (same fit) instead of sampling the
+    # first steps again. A mark written into the earlier file survives only if the file
+    # is appended to, not replaced; the continued chains begin with the earlier ones.
+    import h5py
+
+    _simulate(tmp_path / "lc", 1)
+    short = tmp_path / "short.toml"
+    short.write_text(TINY)
+    longer = tmp_path / "longer.toml"
+    longer.write_text(TINY.replace("max_steps = 200", "max_steps = 300"))
+    out = tmp_path / "out"
+    assert _cli(tmp_path / "lc", "--out", out, "--config", short, "--workers", "1") == 0
+    (folder,) = [p for p in (out / "stars").iterdir() if p.is_dir() and p.name[0] != "."]
+    with h5py.File(folder / "chains.h5", "a") as f:
+        f.attrs["earlier_run"] = "yes"
+        first = f["mode0/ensemble0/chain"][...]
+    assert first.shape[0] == 200
+    assert _cli(tmp_path / "lc", "--out", out, "--config", longer, "--workers", "1") == 0
+    with h5py.File(folder / "chains.h5", "r") as f:
+        assert f.attrs.get("earlier_run") == "yes"
+        chain = f["mode0/ensemble0/chain"][...]
+    assert chain.shape[0] == 300 and np.array_equal(chain[:200], first)
+    summary = json.loads((folder / "summary.json").read_text())
+    assert summary["diagnostics"]["modes"][0]["n_steps"] == 300
+    assert_no_leftovers(out)
+    # A changed seed is another fit: its chains are sampled afresh, not continued.
+    assert _cli(tmp_path / "lc", "--out", out, "--config", longer, "--workers", "1",
+                "--seed", "9") == 0
+    with h5py.File(folder / "chains.h5", "r") as f:
+        assert "earlier_run" not in f.attrs

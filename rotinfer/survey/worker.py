@@ -41,6 +41,8 @@ __all__ = ["StarTimeout", "analyse_with_pipeline", "analysis_name", "process_sta
 #: Exit status of a worker process ended because a star ignored its time limit.
 EXIT_HARD_TIMEOUT = 70
 WARNINGS_FILE = "warnings.txt"
+#: The pipeline's checkpoint of the chains (rotinfer.sample.Checkpoint) in a star's folder.
+CHAINS_FILE = "chains.h5"
 _MAX_ERROR = 500
 
 
@@ -143,6 +145,15 @@ def process_star(
         Also written as ``done.json`` in ``<out_root>/stars/<task.name>/``. Errors of the
         star itself (bad file, numerical failure, timeout) are recorded, not raised.
 
+    Notes
+    -----
+    A star computed again (its configuration changed, e.g. a higher ``[sampler]
+    max_steps`` after it did not converge) starts from a copy of its earlier folder's
+    ``chains.h5``: the checkpoint continues those chains when they belong to the same
+    fit (its fingerprint: data, model, the settings that shape the chains, seed) and
+    is replaced otherwise, so the result is the one a fresh fit would give, sooner. The
+    earlier folder stays in place until the new one is committed.
+
     Raises
     ------
     OSError
@@ -186,6 +197,9 @@ def process_star(
             missing = [f.path for f in inputs if f.sha256 is None]
             if missing:
                 raise InputError(missing[0], "no such file")
+            earlier = store.folder(task.name) / CHAINS_FILE
+            if analyse is analyse_with_pipeline and earlier.is_file():
+                shutil.copy2(earlier, tmp / CHAINS_FILE)
             analyse(task, config=config, seed=seed, out_dir=tmp)
     except StarTimeout:
         failure, error = "timeout", _timeout_message(timeout, hard=False)
