@@ -102,8 +102,12 @@ def ignore_time_limit(task, *, config, seed, out_dir) -> None:
 
 
 def busy_past_limit(task, *, config, seed, out_dir) -> None:
-    """A pure-Python loop that runs until stopped (the soft time limit ends it)."""
+    """A pure-Python loop that runs until stopped (the soft time limit ends it).
+
+    It first leaves a ``chains.h5`` in its folder, as a sampler's checkpoint would.
+    """
     if task.identifier == config["victim"]:
+        (Path(out_dir) / "chains.h5").write_bytes(b"chains so far")
         x = 0
         while True:
             x += 1

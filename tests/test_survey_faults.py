@@ -83,7 +83,16 @@ def test_time_limit_in_a_local_worker(lcs, tmp_path):
     assert delta.failure == "timeout" and "time limit of 1 s" in delta.error
     assert result.complete and result.n_ok == len(NAMES) - 1
     task = next(t for t in collect_tasks([lcs]) if t.identifier == "delta")
-    assert SurveyStore(tmp_path / "o").finished(task, delta.work_hash) is None
+    store = SurveyStore(tmp_path / "o")
+    assert store.finished(task, delta.work_hash) is None
+    # Its chains so far are kept for the next attempt, which is made on resume (a
+    # timeout depends on the run) and, once the star is committed, removes them.
+    kept = store.salvaged_chains(task.name)
+    assert kept.read_bytes() == b"chains so far"
+    again = run_survey([lcs], out=tmp_path / "o", workers=2, progress=False,
+                       config={"victim": "delta"}, analyse=seams.summarise)
+    assert again.complete and again.n_ok == len(NAMES) and not kept.exists()
+    assert_no_leftovers(tmp_path / "o")
 
 
 def test_star_that_ignores_its_time_limit_is_ended(lcs, tmp_path):

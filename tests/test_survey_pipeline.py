@@ -174,7 +174,7 @@ def test_ctrl_c_on_the_command_and_rerun_with_the_real_pipeline(tmp_path):
             proc.kill()
             proc.wait()
     assert proc.returncode == 130, stderr
-    assert_no_leftovers(out)
+    assert_no_leftovers(out, kept_chains_allowed=True)  # the stopped star's chains
     done = sorted(Table.read(out / "catalog.ecsv", format="ascii.ecsv")["identifier"])
     assert 1 <= len(done) < 4
     before = snapshot(out / "stars")
@@ -183,6 +183,7 @@ def test_ctrl_c_on_the_command_and_rerun_with_the_real_pipeline(tmp_path):
     assert {k: after[k] for k in before} == before
     table = Table.read(out / "catalog.ecsv", format="ascii.ecsv")
     assert len(table) == 4 and len(set(table["identifier"])) == 4
+    assert_no_leftovers(out)
 
 
 def test_a_star_recomputed_with_a_higher_cap_continues_its_chains(tmp_path):
@@ -218,3 +219,48 @@ def test_a_star_recomputed_with_a_higher_cap_continues_its_chains(tmp_path):
                 "--seed", "9") == 0
     with h5py.File(folder / "chains.h5", "r") as f:
         assert "earlier_run" not in f.attrs
+
+
+def test_chains_of_a_star_stopped_mid_fit_are_continued_by_the_next_run(tmp_path):
+    # A run stopped mid-star (Ctrl-C, SIGTERM at a cluster's wall-time limit, a killed
+    # worker) leaves the star's temporary folder with its chains so far. The next run
+    # keeps those chains before clearing the folder and the star continues from them;
+    # once the star is committed nothing hidden is left. Chains older than a successful
+    # result of the star are stale and are dropped instead.
+    import os
+
+    import h5py
+
+    _simulate(tmp_path / "lc", 1)
+    short = tmp_path / "short.toml"
+    short.write_text(TINY)
+    longer = tmp_path / "longer.toml"
+    longer.write_text(TINY.replace("max_steps = 200", "max_steps = 300"))
+    out = tmp_path / "out"
+    assert _cli(tmp_path / "lc", "--out", out, "--config", short, "--workers", "1") == 0
+    (folder,) = [p for p in (out / "stars").iterdir() if p.is_dir() and p.name[0] != "."]
+    # As if a later run (longer cap) had been stopped mid-fit: its temporary folder holds
+    # the chains, marked so that their use can be seen.
+    left = out / "stars" / f".tmp.deadbeef0000.{folder.name}.1234abcd"
+    left.mkdir()
+    with h5py.File(folder / "chains.h5", "r") as f:
+        first = f["mode0/ensemble0/chain"][...]
+    (left / "chains.h5").write_bytes((folder / "chains.h5").read_bytes())
+    with h5py.File(left / "chains.h5", "a") as f:
+        f.attrs["stopped_run"] = "yes"
+    later = (folder / "done.json").stat().st_mtime_ns + 10**9
+    os.utime(left / "chains.h5", ns=(later, later))
+    assert _cli(tmp_path / "lc", "--out", out, "--config", longer, "--workers", "1") == 0
+    with h5py.File(folder / "chains.h5", "r") as f:
+        assert f.attrs.get("stopped_run") == "yes"
+        chain = f["mode0/ensemble0/chain"][...]
+    assert chain.shape[0] == 300 and np.array_equal(chain[:200], first)
+    assert_no_leftovers(out)
+
+    # Stale: chains written before the star's successful result are not kept.
+    left.mkdir()
+    (left / "chains.h5").write_bytes((folder / "chains.h5").read_bytes())
+    earlier = (folder / "done.json").stat().st_mtime_ns - 10**9
+    os.utime(left / "chains.h5", ns=(earlier, earlier))
+    assert _cli(tmp_path / "lc", "--out", out, "--config", longer, "--workers", "1") == 0
+    assert_no_leftovers(out)

@@ -9,6 +9,8 @@ Layout of ``--out``::
         error.txt                 the traceback, for a failed star
         ...                       what the pipeline wrote (summary.json, samples, ...)
     stars/.tmp.<run>.<name>.<n>/  a star being written (never read; removed on start)
+    stars/.chains.<name>.h5       the chains of a star whose run was stopped mid-fit,
+                                  kept from its temporary folder for the next attempt
 
 A star's folder appears in one ``os.rename`` of a finished temporary sibling
 (atomic on POSIX file systems), so a folder under ``stars/`` is either absent or
@@ -17,6 +19,12 @@ the analysis function) and the fingerprints of the input files; a later run skip
 the star only when both still match. A folder being replaced is first renamed to
 ``.old.<run>.<name>`` and deleted after the new one is in place, so a crash in
 between loses the old result but never leaves a mixed folder.
+
+A star stopped mid-fit (Ctrl-C, SIGTERM at a cluster's wall-time limit, a killed
+worker) leaves a temporary folder; before it is removed, its ``chains.h5`` is kept as
+``.chains.<name>.h5`` and the next attempt at that star continues from it (the
+checkpoint's own fingerprint decides whether it belongs to the same fit). It is
+deleted once the star's folder is committed.
 """
 
 from __future__ import annotations
@@ -48,6 +56,9 @@ MARKER = "done.json"
 ERROR_FILE = "error.txt"
 TMP_PREFIX = ".tmp."
 OLD_PREFIX = ".old."
+SALVAGE_PREFIX = ".chains."
+#: The pipeline's checkpoint of the chains (rotinfer.sample.Checkpoint) in a star's folder.
+CHAINS_FILE = "chains.h5"
 LOCK_FILE = ".survey.lock"
 #: Failure kinds that depend on the run (time limit, machine) and are retried on resume.
 TRANSIENT_FAILURES = ("timeout", "crashed")
@@ -228,6 +239,11 @@ class SurveyStore:
             raise InputError(str(self.stars), f"refusing unsafe star folder name {name!r}")
         return self.stars / name
 
+    def salvaged_chains(self, name: str) -> Path:
+        """Where the chains of ``name`` are kept after its run stopped mid-fit."""
+        self.folder(name)
+        return self.stars / f"{SALVAGE_PREFIX}{name}.h5"
+
     def new_temporary(self, name: str, run_token: str) -> Path:
         """Create and return an empty temporary folder for ``name`` (unique per call)."""
         self.folder(name)
@@ -322,9 +338,34 @@ class SurveyStore:
                 continue
             if run_token is not None and not path.name.split(".", 3)[2:3] == [run_token]:
                 continue
+            if path.name.startswith(TMP_PREFIX):
+                self._salvage(path)
             shutil.rmtree(path, ignore_errors=True)
             removed.append(path)
         return removed
+
+    def _salvage(self, tmp: Path) -> None:
+        """Keep the chains of a star stopped mid-fit (see the module's docstring).
+
+        Not when the star finished successfully after they were written (a retry that
+        got through makes them stale), nor over newer chains already kept for it.
+        """
+        chains = tmp / CHAINS_FILE
+        # .tmp.<run>.<name>.<8 hex>; names never start with "." but may contain dots
+        name = tmp.name[len(TMP_PREFIX):].split(".", 1)[-1].rsplit(".", 1)[0]
+        try:
+            if not chains.is_file():
+                return
+            kept = self.salvaged_chains(name)
+            mtime = chains.stat().st_mtime_ns
+            marker = self.folder(name) / MARKER
+            record = self.read_record(name)
+            if record is not None and record.status == "ok" and marker.stat().st_mtime_ns > mtime:
+                return
+            if not kept.exists() or kept.stat().st_mtime_ns < mtime:
+                os.replace(chains, kept)
+        except (InputError, OSError):
+            return  # a malformed leftover or a full disk: the star is simply fitted afresh
 
     @contextlib.contextmanager
     def lock(self):

@@ -33,7 +33,15 @@ from pathlib import Path
 
 from .. import __version__
 from ..errors import InputError
-from .store import ERROR_FILE, MARKER, StarRecord, SurveyStore, fingerprint_inputs, work_hash
+from .store import (
+    CHAINS_FILE,
+    ERROR_FILE,
+    MARKER,
+    StarRecord,
+    SurveyStore,
+    fingerprint_inputs,
+    work_hash,
+)
 from .tasks import StarTask, star_seed
 
 __all__ = ["StarTimeout", "analyse_with_pipeline", "analysis_name", "process_star"]
@@ -41,8 +49,6 @@ __all__ = ["StarTimeout", "analyse_with_pipeline", "analysis_name", "process_sta
 #: Exit status of a worker process ended because a star ignored its time limit.
 EXIT_HARD_TIMEOUT = 70
 WARNINGS_FILE = "warnings.txt"
-#: The pipeline's checkpoint of the chains (rotinfer.sample.Checkpoint) in a star's folder.
-CHAINS_FILE = "chains.h5"
 _MAX_ERROR = 500
 
 
@@ -147,12 +153,15 @@ def process_star(
 
     Notes
     -----
-    A star computed again (its configuration changed, e.g. a higher ``[sampler]
-    max_steps`` after it did not converge) starts from a copy of its earlier folder's
-    ``chains.h5``: the checkpoint continues those chains when they belong to the same
-    fit (its fingerprint: data, model, the settings that shape the chains, seed) and
-    is replaced otherwise, so the result is the one a fresh fit would give, sooner. The
-    earlier folder stays in place until the new one is committed.
+    A star starts from a copy of the chains of its last attempt: those kept from a run
+    stopped mid-fit (:meth:`SurveyStore.salvaged_chains`), else its earlier folder's
+    ``chains.h5`` when it is computed again (its configuration changed, e.g. a higher
+    ``[sampler] max_steps`` after it did not converge). The checkpoint continues those
+    chains when they belong to the same fit (its fingerprint: data, model, the settings
+    that shape the chains, seed) and replaces them otherwise, so the result is the one
+    a fresh fit would give, sooner. The earlier folder stays in place until the new one
+    is committed; kept chains are deleted then, unless the star ran past its time limit,
+    whose chains are kept for the next attempt (a rerun continues a long fit).
 
     Raises
     ------
@@ -189,6 +198,7 @@ def process_star(
         os._exit(EXIT_HARD_TIMEOUT)
 
     tmp = store.new_temporary(task.name, run_token)
+    salvaged = store.salvaged_chains(task.name)
     failure = error = details = ""
     inputs = ()
     try:
@@ -197,7 +207,7 @@ def process_star(
             missing = [f.path for f in inputs if f.sha256 is None]
             if missing:
                 raise InputError(missing[0], "no such file")
-            earlier = store.folder(task.name) / CHAINS_FILE
+            earlier = salvaged if salvaged.is_file() else store.folder(task.name) / CHAINS_FILE
             if analyse is analyse_with_pipeline and earlier.is_file():
                 shutil.copy2(earlier, tmp / CHAINS_FILE)
             analyse(task, config=config, seed=seed, out_dir=tmp)
@@ -206,6 +216,8 @@ def process_star(
     except Exception as exc:  # the star failed; the survey records it and goes on
         failure, error, details = "error", one_line(exc), traceback.format_exc()
     seconds = time.perf_counter() - start
+    if failure == "timeout" and (tmp / CHAINS_FILE).is_file():
+        os.replace(tmp / CHAINS_FILE, salvaged)  # the next attempt continues them
     if failure:
         _empty(tmp)  # partial outputs of a failed star are not kept
         (tmp / ERROR_FILE).write_text(details or error + "\n", encoding="utf-8")
@@ -214,6 +226,8 @@ def process_star(
         rec = record("ok", inputs=inputs, seconds=seconds)
     (tmp / MARKER).write_text(rec.to_json(), encoding="utf-8")
     store.commit(tmp, task.name, run_token)
+    if failure != "timeout":
+        salvaged.unlink(missing_ok=True)
     return rec
 
 
