@@ -186,14 +186,8 @@ def test_ctrl_c_on_the_command_and_rerun_with_the_real_pipeline(tmp_path):
     assert_no_leftovers(out)
 
 
-def test_a_star_recomputed_with_a_higher_cap_continues_its_chains(tmp_path):
-    # Raising [sampler] max_steps after a star did not converge changes the work hash,
-    # so the survey computes the star again; it starts from the earlier folder's
-    # chains.h5, which the checkpoint continues (same fit) instead of sampling the
-    # first steps again. A mark written into the earlier file survives only if the file
-    # is appended to, not replaced; the continued chains begin with the earlier ones.
-    import h5py
-
+def _one_star_surveyed_with_200_steps(tmp_path):
+    """(out, the star's folder, a configuration with a 300-step cap) after one survey."""
     _simulate(tmp_path / "lc", 1)
     short = tmp_path / "short.toml"
     short.write_text(TINY)
@@ -202,6 +196,18 @@ def test_a_star_recomputed_with_a_higher_cap_continues_its_chains(tmp_path):
     out = tmp_path / "out"
     assert _cli(tmp_path / "lc", "--out", out, "--config", short, "--workers", "1") == 0
     (folder,) = [p for p in (out / "stars").iterdir() if p.is_dir() and p.name[0] != "."]
+    return out, folder, longer
+
+
+def test_a_star_recomputed_with_a_higher_cap_continues_its_chains(tmp_path):
+    # Raising [sampler] max_steps after a star did not converge changes the work hash,
+    # so the survey computes the star again; it starts from the earlier folder's
+    # chains.h5, which the checkpoint continues (same fit) instead of sampling the
+    # first steps again. A mark written into the earlier file survives only if the file
+    # is appended to, not replaced; the continued chains begin with the earlier ones.
+    import h5py
+
+    out, folder, longer = _one_star_surveyed_with_200_steps(tmp_path)
     with h5py.File(folder / "chains.h5", "a") as f:
         f.attrs["earlier_run"] = "yes"
         first = f["mode0/ensemble0/chain"][...]
@@ -231,14 +237,7 @@ def test_chains_of_a_star_stopped_mid_fit_are_continued_by_the_next_run(tmp_path
 
     import h5py
 
-    _simulate(tmp_path / "lc", 1)
-    short = tmp_path / "short.toml"
-    short.write_text(TINY)
-    longer = tmp_path / "longer.toml"
-    longer.write_text(TINY.replace("max_steps = 200", "max_steps = 300"))
-    out = tmp_path / "out"
-    assert _cli(tmp_path / "lc", "--out", out, "--config", short, "--workers", "1") == 0
-    (folder,) = [p for p in (out / "stars").iterdir() if p.is_dir() and p.name[0] != "."]
+    out, folder, longer = _one_star_surveyed_with_200_steps(tmp_path)
     # As if a later run (longer cap) had been stopped mid-fit: its temporary folder holds
     # the chains, marked so that their use can be seen.
     left = out / "stars" / f".tmp.deadbeef0000.{folder.name}.1234abcd"
