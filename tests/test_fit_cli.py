@@ -104,6 +104,8 @@ def test_cli_fit_end_to_end_reproducible_and_resumable(tmp_path, star_file, caps
     assert summary["converged"] is False
     assert "NOT CONVERGED" in captured.err
     assert "NOT CONVERGED" in captured.out
+    assert "higher [sampler] max_steps (now 100 steps)" in captured.err  # ... and how to go on
+    assert str(folder / "chains.h5") in captured.err
     samples = np.load(folder / "samples.npz")
     assert samples["period"].shape == samples["weight"].shape
     assert samples["weight"].sum() == pytest.approx(1.0)

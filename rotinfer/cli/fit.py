@@ -94,6 +94,12 @@ def fit(settings, files, out_dir, config_path, seed, **opts):
             f"amplitude {summary.amplitude_ppt['median']:.3g} ppt; {', '.join(flags)}; "
             f"-> {out / name}"
         )
+        if not summary.converged:
+            click.echo(
+                f"rotinfer: {lc.meta.identifier}: to continue these chains, rerun this "
+                f"command with a higher [sampler] max_steps (now {config.sampler.max_steps} steps) "
+                f"in --config: {out / name / 'chains.h5'} is extended, not sampled again",
+                err=True)
         from ..report import write_star_page
 
         write_star_page(out / name)
