@@ -209,7 +209,10 @@ def process_star(
                 raise InputError(missing[0], "no such file")
             earlier = salvaged if salvaged.is_file() else store.folder(task.name) / CHAINS_FILE
             if analyse is analyse_with_pipeline and earlier.is_file():
-                shutil.copy2(earlier, tmp / CHAINS_FILE)
+                try:
+                    shutil.copy2(earlier, tmp / CHAINS_FILE)
+                except OSError:  # a convenience only: without it the star starts afresh
+                    (tmp / CHAINS_FILE).unlink(missing_ok=True)
             analyse(task, config=config, seed=seed, out_dir=tmp)
     except StarTimeout:
         failure, error = "timeout", _timeout_message(timeout, hard=False)
