@@ -329,7 +329,8 @@ class SurveyStore:
     def clean_leftovers(self, *, run_token: str | None = None) -> list[Path]:
         """Remove temporary and set-aside folders (all, or only those of one run).
 
-        Called on start (a killed run leaves its temporaries) and when a run stops.
+        Called on start (a killed run leaves its temporaries) and when a run stops. The
+        chains in a temporary folder are kept first (:meth:`salvaged_chains`).
         """
         removed = []
         prefixes = (TMP_PREFIX, OLD_PREFIX)
