@@ -149,7 +149,8 @@ def _flag_sentences(summary: Mapping[str, Any]) -> list[str]:
             f"NOT CONVERGED: the chains did not meet the convergence rule (length {length} "
             "autocorrelation times and split R-hat across independent ensembles below the "
             "threshold). Intervals may be too narrow or in the wrong place; rerun with a larger "
-            "step cap."
+            "step cap ([sampler] max_steps) into the same folder: the stored chains "
+            "(chains.h5) are extended, not sampled again."
         )
     harmonic = summary.get("harmonic") or {}
     if harmonic.get("flag"):

@@ -103,6 +103,7 @@ def test_star_page_is_self_contained_and_explains_flags(tmp_path):
     assert "11.3 d" in page and "4.2 ppt" in page
     assert "NOT CONVERGED" in page and "Harmonic warning" in page
     assert "length over 20 autocorrelation times" in page  # the configured rule, not 50
+    assert "chains.h5) are extended, not sampled again" in page  # how to go on
     assert "Sampling warning" not in page
     assert "R-hat 1.2 &gt; 1.01" in page and "split R-hat across ensembles" in page
     assert "period precision 0.043" in page  # the optional clause's figure, when recorded
