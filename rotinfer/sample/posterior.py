@@ -54,12 +54,12 @@ __all__ = ["Posterior", "SampledMode", "fit", "importance_log_evidence", "optimi
 # the whole stopping rule (length in tau, tau stability, R-hat, burn-in, stuck walkers:
 # they decide where a chain stops, never what it holds, since every ensemble's random
 # state is stored per block), e.g. to continue a run under a stricter rule.
-_NOT_IN_FINGERPRINT = ("max_steps", "importance_draws", "tau_noise_z", "period_precision",
-                       "tau_multiple", "tau_rtol", "rhat_max", "burn_in_tau", "stuck_ratio")
 # What earlier versions left out: their checkpoints are still resumed (and relabelled)
 # when their stopping rule is the one asked for now.
 _NOT_IN_LEGACY_FINGERPRINT = ("max_steps", "importance_draws", "tau_noise_z",
                               "period_precision")
+_STOPPING_RULE = ("tau_multiple", "tau_rtol", "rhat_max", "burn_in_tau", "stuck_ratio")
+_NOT_IN_FINGERPRINT = _NOT_IN_LEGACY_FINGERPRINT + _STOPPING_RULE
 #: Model options that do not change the periodic model's chains (the detection test's
 #: comparison model only), so checkpoints resume across them.
 _MODEL_NOT_IN_FINGERPRINT = ("max_comparison_backgrounds",)
