@@ -178,7 +178,8 @@ def options_hash(cfg) -> str:
     Not the wording of the false-alarm statement; not the options of the sampling check,
     which only adds a flag to the summary (dropped, not blanked, so that stars fitted
     before the check existed still match); not the options of a model term that is
-    switched off (the fit is then the same as before the term existed).
+    switched off, nor an option at the value that gives the model as it was before the
+    option existed (the fit is then the same as before).
     """
     import hashlib
     import json
@@ -193,6 +194,8 @@ def options_hash(cfg) -> str:
     if options["model"].get("night_offsets") == "off":
         for key in NIGHT_OPTIONS:
             options["model"].pop(key, None)
+    if options["model"].get("secondary_coherence") == "quality":  # the model as before
+        options["model"].pop("secondary_coherence")
     if options["sampler"].get("period_precision") == 0:  # the clause is off
         options["sampler"].pop("period_precision")
     text = json.dumps(options, sort_keys=True, default=str)

@@ -76,7 +76,10 @@ sampled parameter           meaning
 ``logit_secondary_fraction`` f / f_max: fraction of the rotation variance in the
                             P/2 mode is f / (1 + f)
 ``logit_secondary_quality`` r: Q0 = r (Q1 - 1/2), dQ = (1 - r)(Q1 - 1/2), so the
-                            P/2 mode is never more coherent than the mode at P
+                            P/2 mode's quality factor is at most the mode at P's
+                            (it then decays at least twice as fast); with
+                            ``secondary_coherence = "time"`` its damping time is
+                            r tau_coh (dQ may then be negative)
 ``log_background_amplitude`` ln sigma_bg (relative flux)
 ``log_background_timescale`` ln tau_bg, damping time of the background in days
 ``log_background2_*``, ...  further background oscillators (aperiodic model only)
@@ -141,6 +144,8 @@ _EMPTY = np.empty(0)
 #: Two-sided 95 % point of the standard normal (Phi^-1(0.975)).
 _Z95 = 1.959963984540054
 #: Allowed values of ``[model] night_offsets``.
+#: How the P/2 mode's coherence is bounded by the mode at P (``[model] secondary_coherence``).
+SECONDARY_COHERENCE_CHOICES = ("quality", "time")
 NIGHT_OFFSET_CHOICES = ("off", "auto", "on")
 #: ``is_nightly``: fewest nights, and the longest median night (days), of nightly sampling.
 NIGHTLY_MIN_NIGHTS = 10
@@ -175,6 +180,13 @@ class ModelConfig:
         variance (1 means at most half).
     secondary_fraction_beta, secondary_quality_beta : [a, b]
         Beta(a, b) priors on f / f_max and on r (``Beta(1, 1)`` is uniform).
+    secondary_coherence : {"quality", "time"}
+        What bounds the P/2 mode's coherence by the mode at P's. "quality" (default,
+        celerite2's ``dQ >= 0`` convention): its quality factor is r x that of the mode
+        at P (Q0 = r (Q1 - 1/2)), so its damping time is at most half the mode at P's.
+        "time": its damping time is r x tau_coh, as for the harmonic of one spot pattern
+        that grows and decays as a whole (both Fourier components share its envelope);
+        Q2 may then exceed Q1 (celerite2's ``dQ`` negative).
     background : bool
         Include the aperiodic background oscillator.
     background_amplitude_ppt : [lo, hi]
@@ -216,6 +228,7 @@ class ModelConfig:
     max_secondary_fraction: float = 1.0
     secondary_fraction_beta: tuple[float, ...] = (1.0, 1.0)
     secondary_quality_beta: tuple[float, ...] = (1.0, 1.0)
+    secondary_coherence: str = "quality"
     background: bool = True
     background_amplitude_ppt: tuple[float, ...] = (0.01, 300.0)
     background_timescale_days: tuple[float, ...] = (0.01, 30.0)
@@ -260,6 +273,11 @@ class ModelConfig:
         if isinstance(n_pb, bool) or n_pb not in (1, 2, "auto"):
             raise ConfigError(
                 f"[model] periodic_backgrounds: allowed 1, 2 or \"auto\", got {n_pb!r}")
+        if self.secondary_coherence not in SECONDARY_COHERENCE_CHOICES:
+            raise ConfigError(
+                "[model] secondary_coherence: allowed "
+                f"{', '.join(map(repr, SECONDARY_COHERENCE_CHOICES))}, "
+                f"got {self.secondary_coherence!r}")
         if self.night_offsets not in NIGHT_OFFSET_CHOICES:
             raise ConfigError(
                 f"[model] night_offsets: allowed {', '.join(map(repr, NIGHT_OFFSET_CHOICES))}, "
@@ -658,13 +676,19 @@ class RotationModel:
             rot = math.exp(th["log_coherence"])
             q1 = 0.5 * math.sqrt(1.0 + (2.0 * math.pi * rot) ** 2)
             r = _logistic(th["logit_secondary_quality"])
+            if self.config.secondary_coherence == "time":
+                # the P/2 mode's damping time P sqrt(4 Q2^2 - 1) / (4 pi) is r tau_coh
+                q0 = 0.5 * math.sqrt(1.0 + (4.0 * math.pi * r * rot) ** 2) - 0.5
+                dq = q1 - 0.5 - q0
+            else:
+                q0, dq = r * (q1 - 0.5), (1.0 - r) * (q1 - 0.5)
             out.update(
                 period=math.exp(th["log_period"]),
                 sigma=math.exp(th["log_amplitude"]),
                 coherence_rotations=rot,
                 Q1=q1,
-                Q0=r * (q1 - 0.5),
-                dQ=(1.0 - r) * (q1 - 0.5),
+                Q0=q0,
+                dQ=dq,
                 f=self.config.max_secondary_fraction * _logistic(th["logit_secondary_fraction"]),
             )
         for suffix in self.background_suffixes:

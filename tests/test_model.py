@@ -60,12 +60,13 @@ def _dense_covariance(model, theta):
 
 
 def _toy_model(rng, n=150, periodic=True, background=True, max_comparison_backgrounds=2,
-               periodic_backgrounds=1, marginalise_mean=True):
+               periodic_backgrounds=1, marginalise_mean=True, secondary_coherence="quality"):
     t = np.sort(rng.uniform(0.0, 20.0, n))
     y = 1.0 + 2e-3 * np.sin(2 * np.pi * t / 3.1) + 3e-4 * rng.standard_normal(n)
     err = rng.uniform(2e-4, 4e-4, n)
     cfg = ModelConfig(background=background, max_comparison_backgrounds=max_comparison_backgrounds,
-                      periodic_backgrounds=periodic_backgrounds, marginalise_mean=marginalise_mean)
+                      periodic_backgrounds=periodic_backgrounds, marginalise_mean=marginalise_mean,
+                      secondary_coherence=secondary_coherence)
     model = RotationModel(t, y, err, config=cfg, period_range=(0.3, 10.0))
     return model if periodic else model.aperiodic()
 
@@ -73,7 +74,7 @@ def _toy_model(rng, n=150, periodic=True, background=True, max_comparison_backgr
 @pytest.mark.parametrize("marginalise", [True, False])
 @pytest.mark.parametrize("periodic,background,n_bg",
                          [(True, True, 2), (True, False, 2), (False, True, 2), (False, True, 3),
-                          (True, True, "periodic 2")])
+                          (True, True, "periodic 2"), (True, True, "time")])
 def test_log_likelihood_matches_dense_multivariate_normal(rng, periodic, background, n_bg,
                                                           marginalise):
     # Reference: scipy.stats.multivariate_normal.logpdf on the dense covariance built from
@@ -83,6 +84,8 @@ def test_log_likelihood_matches_dense_multivariate_normal(rng, periodic, backgro
     if n_bg == "periodic 2":  # rotation term + two ordered background oscillators
         model = _toy_model(rng, periodic_backgrounds=2, marginalise_mean=marginalise)
         assert model.background_suffixes == ("", "2")
+    elif n_bg == "time":  # the P/2 mode bounded in damping time (dQ may be negative)
+        model = _toy_model(rng, marginalise_mean=marginalise, secondary_coherence="time")
     else:
         model = _toy_model(rng, periodic=periodic, background=background,
                            max_comparison_backgrounds=n_bg, marginalise_mean=marginalise)
@@ -319,6 +322,31 @@ def test_pickle_round_trip_and_no_gp_stored(rng):
     assert not any("GaussianProcess" in type(v).__name__ for v in vars(model).values())
 
 
+@pytest.mark.parametrize("bound", ["quality", "time"])
+def test_secondary_mode_damping_time(rng, bound):
+    # Reference library: celerite2's own RotationTerm, built from the unpacked parameters;
+    # each SHO's complex coefficient c is the inverse of its damping time. "time": the P/2
+    # mode's damping time is r times the P mode's, which is tau_coh = coherence_rotations
+    # x P; "quality" (Q2 <= Q1): the P/2 mode decays at least twice as fast.
+    from celerite2 import terms
+
+    model = _toy_model(rng, secondary_coherence=bound)
+    i = model.names.index("logit_secondary_quality")
+    for theta in model.sample_prior(rng, 20):
+        p = model.unpack(theta)
+        r = special.expit(theta[i])
+        kernel = terms.RotationTerm(sigma=p["sigma"], period=p["period"], Q0=p["Q0"],
+                                    dQ=p["dQ"], f=p["f"])
+        c = kernel.get_coefficients()[4]  # complex part: (ac, bc, cc, dc) -> cc
+        tau1, tau2 = 1.0 / c[0], 1.0 / c[1]
+        assert tau1 == pytest.approx(p["coherence_rotations"] * p["period"], rel=1e-9)
+        assert 2 * math.pi / kernel.get_coefficients()[5][1] == pytest.approx(p["period"] / 2)
+        if bound == "time":
+            assert tau2 == pytest.approx(r * tau1, rel=1e-9)
+        else:
+            assert tau2 <= 0.5 * tau1 * (1 + 1e-12)
+
+
 def test_invalid_inputs_and_config():
     t = np.linspace(0, 10, 20)
     with pytest.raises(InputError, match="sorted"):
@@ -335,6 +363,8 @@ def test_invalid_inputs_and_config():
     for bad in (0, 3, 1.5, True, "two"):
         with pytest.raises(ConfigError, match='periodic_backgrounds: allowed 1, 2 or "auto"'):
             ModelConfig(periodic_backgrounds=bad)
+    with pytest.raises(ConfigError, match="secondary_coherence: allowed 'quality', 'time'"):
+        ModelConfig(secondary_coherence="lifetime")
 
 
 def test_simulate_has_model_covariance(rng):

@@ -609,3 +609,22 @@ def test_checkpoint_resumes_under_another_stopping_rule(tmp_path, monkeypatch):
         assert np.array_equal(f["mode0/ensemble0/chain"][...], longer)
     other = dataclasses.replace(stricter, warmup_steps=60)
     assert post._fingerprint(star, [4.0], other, 3) != current
+
+
+def test_fingerprint_of_a_later_model_option():
+    # A model option added later stays out of a checkpoint's fingerprint while it holds
+    # the value that gives the model as before (so earlier checkpoints still resume), and
+    # enters it otherwise. The literal is the fingerprint this light curve and these
+    # settings had before [model] secondary_coherence existed (computed at commit ed441da).
+    import dataclasses
+
+    from rotinfer.model import ModelConfig, RotationModel
+    from rotinfer.sample import posterior as post
+
+    t = np.linspace(0.0, 30.0, 200)
+    model = RotationModel(t, np.ones(200), np.full(200, 1e-3), period_range=(0.5, 15.0))
+    assert model.config.secondary_coherence == "quality"
+    before = "f183679aab2690358347b81d0c8fa464"
+    assert post._fingerprint(model, [4.0], SamplerConfig(), 3) == before
+    timed = dataclasses.replace(model, config=ModelConfig(secondary_coherence="time"))
+    assert post._fingerprint(timed, [4.0], SamplerConfig(), 3) != before
