@@ -179,7 +179,8 @@ def main(argv=None) -> int:
         records = ([json.loads(x) for x in log.read_text().splitlines() if x.strip()]
                    if log.exists() else [])
         done = {(r["star"], r["variant"]) for r in records}
-        for rec in _fit(ident, variants, args.work, config, done):
+        todo = [v for v in variants if (ident, f"{v[0]}:{v[1]:g}") not in done]
+        for rec in _fit(ident, todo, args.work, config, done) if todo else ():
             with log.open("a") as f:
                 f.write(json.dumps(rec) + "\n")
             records.append(rec)
