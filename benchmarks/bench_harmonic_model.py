@@ -31,6 +31,7 @@ import time
 from pathlib import Path
 
 import numpy as np
+from bench_population import _within
 
 HERE = Path(__file__).resolve().parent
 
@@ -40,15 +41,20 @@ def _variant(text: str) -> tuple[str, float]:
     return coherence, float(fmax or 1.0)
 
 
+def _key(variant: tuple[str, float]) -> str:
+    """How a variant is written in the log and the table, e.g. 'time:3'."""
+    return f"{variant[0]}:{variant[1]:g}"
+
+
 def _verdict(period: float, lo: float, hi: float) -> str:
     """'right' within 10 % of the true range, 'P/2' or '2P' likewise, else 'other'."""
     for label, k in (("right", 1.0), ("P/2", 0.5), ("2P", 2.0)):
-        if 0.9 * k * lo <= period <= 1.1 * k * hi:
+        if _within(period, k * lo, k * hi):
             return label
     return "other"
 
 
-def _fit(ident, variants, work, config, done):
+def _fit(ident, variants, work, config):
     from rotinfer.io import read_stars
     from rotinfer.model import RotationModel
     from rotinfer.periodogram import scan
@@ -66,9 +72,6 @@ def _fit(ident, variants, work, config, done):
     s = scan(prepared, config=config.periodogram)
     aperiodic = None
     for coherence, fmax in variants:
-        key = f"{coherence}:{fmax:g}"
-        if (ident, key) in done:
-            continue
         t0 = time.process_time()
         mc = dataclasses.replace(config.model, secondary_coherence=coherence,
                                  max_secondary_fraction=fmax)
@@ -84,7 +87,8 @@ def _fit(ident, variants, work, config, done):
         dbic = detection_statistics(chosen, modes, aperiodic)[0]
         ranked = sorted(modes, key=lambda m: -m.rank_value)
         yield dict(
-            star=ident, variant=key, truth=[float(row["period_min"]), float(row["period_max"])],
+            star=ident, variant=_key((coherence, fmax)),
+            truth=[float(row["period_min"]), float(row["period_max"])],
             delta_bic=float(dbic),
             modes=[[float(m.period), float(m.rank_value)] for m in ranked],
             cpu=time.process_time() - t0,
@@ -92,7 +96,7 @@ def _fit(ident, variants, work, config, done):
 
 
 def _table(records, variants, header) -> str:
-    keys = [f"{c}:{f:g}" for c, f in variants]
+    keys = [_key(v) for v in variants]
     by = {(r["star"], r["variant"]): r for r in records}
     stars = sorted({r["star"] for r in records}, key=lambda s: (s.split("-")[1], s))
     lines = header + [
@@ -179,8 +183,8 @@ def main(argv=None) -> int:
         records = ([json.loads(x) for x in log.read_text().splitlines() if x.strip()]
                    if log.exists() else [])
         done = {(r["star"], r["variant"]) for r in records}
-        todo = [v for v in variants if (ident, f"{v[0]}:{v[1]:g}") not in done]
-        for rec in _fit(ident, todo, args.work, config, done) if todo else ():
+        todo = [v for v in variants if (ident, _key(v)) not in done]
+        for rec in _fit(ident, todo, args.work, config) if todo else ():
             with log.open("a") as f:
                 f.write(json.dumps(rec) + "\n")
             records.append(rec)

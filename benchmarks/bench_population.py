@@ -185,6 +185,7 @@ def options_hash(cfg) -> str:
     import json
 
     from rotinfer.config import dataclass_to_dict
+    from rotinfer.model import EARLIER_MODEL_VALUES
 
     detection = dataclasses.replace(cfg.detection, false_alarm_rate=None,
                                     false_alarm_upper_95=None, calibration="")
@@ -194,8 +195,9 @@ def options_hash(cfg) -> str:
     if options["model"].get("night_offsets") == "off":
         for key in NIGHT_OPTIONS:
             options["model"].pop(key, None)
-    if options["model"].get("secondary_coherence") == "quality":  # the model as before
-        options["model"].pop("secondary_coherence")
+    for key, earlier in EARLIER_MODEL_VALUES.items():  # the model as before the option
+        if options["model"].get(key) == earlier:
+            options["model"].pop(key)
     if options["sampler"].get("period_precision") == 0:  # the clause is off
         options["sampler"].pop("period_precision")
     text = json.dumps(options, sort_keys=True, default=str)

@@ -146,6 +146,10 @@ _Z95 = 1.959963984540054
 #: Allowed values of ``[model] night_offsets``.
 #: How the P/2 mode's coherence is bounded by the mode at P (``[model] secondary_coherence``).
 SECONDARY_COHERENCE_CHOICES = ("quality", "time")
+#: Model options added later, each with the value that gives the model as it was before the
+#: option existed: at that value they stay out of checkpoint fingerprints (and the
+#: population benchmark's key), so that earlier chains still resume.
+EARLIER_MODEL_VALUES = {"secondary_coherence": "quality"}
 NIGHT_OFFSET_CHOICES = ("off", "auto", "on")
 #: ``is_nightly``: fewest nights, and the longest median night (days), of nightly sampling.
 NIGHTLY_MIN_NIGHTS = 10

@@ -39,7 +39,7 @@ import numpy as np
 from scipy import special, stats
 
 from ..config import dataclass_to_dict
-from ..model import RotationModel
+from ..model import EARLIER_MODEL_VALUES, RotationModel
 from ._threads import single_blas_thread
 from .checkpoint import Checkpoint
 from .ensemble import EnsembleRun, run_ensembles
@@ -63,9 +63,6 @@ _NOT_IN_FINGERPRINT = _NOT_IN_LEGACY_FINGERPRINT + _STOPPING_RULE
 #: Model options that do not change the periodic model's chains (the detection test's
 #: comparison model only), so checkpoints resume across them.
 _MODEL_NOT_IN_FINGERPRINT = ("max_comparison_backgrounds",)
-#: Model options added later, left out while they hold the value that gives the model as
-#: it was before they existed, so that earlier checkpoints still resume.
-_MODEL_LATER_OPTIONS = {"secondary_coherence": "quality"}
 
 
 @dataclass(frozen=True)
@@ -195,7 +192,7 @@ def _fingerprint(model: RotationModel, periods, config: SamplerConfig, seed,
     sampler = {k: v for k, v in dataclass_to_dict(config).items() if k not in leave_out}
     model_cfg = {k: v for k, v in dataclass_to_dict(model.config).items()
                  if k not in _MODEL_NOT_IN_FINGERPRINT
-                 and not (k in _MODEL_LATER_OPTIONS and _MODEL_LATER_OPTIONS[k] == v)}
+                 and not (k in EARLIER_MODEL_VALUES and EARLIER_MODEL_VALUES[k] == v)}
     meta = {
         "model": model_cfg, "period_range": list(model.period_range),
         "sampler": sampler, "seed": seed, "periods": [float(p) for p in periods],
