@@ -186,6 +186,7 @@ def options_hash(cfg) -> str:
 
     from rotinfer.config import dataclass_to_dict
     from rotinfer.model import EARLIER_MODEL_VALUES
+    from rotinfer.sample.settings import EARLIER_SAMPLER_VALUES
 
     detection = dataclasses.replace(cfg.detection, false_alarm_rate=None,
                                     false_alarm_upper_95=None, calibration="")
@@ -200,6 +201,9 @@ def options_hash(cfg) -> str:
             options["model"].pop(key)
     if options["sampler"].get("period_precision") == 0:  # the clause is off
         options["sampler"].pop("period_precision")
+    for key, earlier in EARLIER_SAMPLER_VALUES.items():  # sampling as before the option
+        if options["sampler"].get(key) == earlier:
+            options["sampler"].pop(key)
     text = json.dumps(options, sort_keys=True, default=str)
     return hashlib.sha256(text.encode()).hexdigest()[:16]
 

@@ -628,3 +628,78 @@ def test_fingerprint_of_a_later_model_option():
     assert post._fingerprint(model, [4.0], SamplerConfig(), 3) == before
     timed = dataclasses.replace(model, config=ModelConfig(secondary_coherence="time"))
     assert post._fingerprint(timed, [4.0], SamplerConfig(), 3) != before
+    jumping = dataclasses.replace(SamplerConfig(), period_jump=0.2)
+    assert post._fingerprint(model, [4.0], jumping, 3) != before  # a later sampler option
+
+
+# A target whose first coordinate ("log_period") has two narrow peaks far apart, with
+# weights 0.3 and 0.7, and a second coordinate that is Normal(0, 1) independently: the
+# ensemble moves of one walker cloud started on one peak do not cross the gap.
+PEAKS = np.array([-1.0, 1.0])
+PEAK_WEIGHTS = np.array([0.3, 0.7])
+PEAK_SD = 0.03
+
+
+def two_peaks(x):
+    if not -2.0 <= x[0] <= 2.0:
+        return -math.inf
+    dens = PEAK_WEIGHTS * stats.norm.pdf(x[0], PEAKS, PEAK_SD)
+    return math.log(dens.sum() + 1e-300) - 0.5 * x[1] ** 2
+
+
+def test_period_jump_density_is_the_stated_mixture():
+    # The proposal density is u x uniform(lo, hi) + (1 - u) x a Gaussian kernel density:
+    # checked against SciPy's gaussian_kde (whose kernel sd is its factor times the
+    # centres' sd) and its normalisation against SciPy's quad.
+    from scipy import integrate
+
+    from rotinfer.sample import PeriodJumpMove
+
+    rng = np.random.default_rng(4)
+    centres = rng.normal(0.3, 0.5, 300)
+    move = PeriodJumpMove.from_draws(0, (-1.5, 2.5), centres, uniform_fraction=0.4)
+    kde = stats.gaussian_kde(centres, bw_method=move.bandwidth / centres.std(ddof=1))
+    x = np.linspace(-3.0, 4.0, 57)
+    expected = 0.4 * ((x >= -1.5) & (x <= 2.5)) / 4.0 + 0.6 * kde(x)
+    assert np.allclose(np.exp(move.log_density(x)), expected, rtol=1e-10, atol=1e-300)
+    total, _ = integrate.quad(lambda v: np.exp(move.log_density([v]))[0], -8, 9,
+                              points=[-1.5, 2.5], limit=200)
+    assert total == pytest.approx(1.0, abs=1e-6)
+    # Silverman (1986, eq. 3.31): 0.9 min(sd, IQR/1.34) n^(-1/5)
+    q75, q25 = np.percentile(centres, [75, 25])
+    assert move.bandwidth == pytest.approx(
+        0.9 * min(centres.std(), (q75 - q25) / 1.34) * 300 ** -0.2)
+    draws = move.draw(200_000, np.random.RandomState(5))
+    # the draws follow g: Kolmogorov-Smirnov against its CDF by quadrature (SciPy)
+    grid = np.linspace(-4.0, 5.0, 3001)
+    cdf = np.concatenate([[0.0], integrate.cumulative_trapezoid(
+        np.exp(move.log_density(grid)), grid)])
+    ks = stats.kstest(draws, lambda v: np.interp(v, grid, cdf))
+    assert ks.pvalue > 1e-3, ks
+
+
+@pytest.mark.parametrize("weight, recovered", [(0.0, False), (0.3, True)])
+def test_period_jump_crosses_between_separated_peaks(weight, recovered):
+    # Started on the heavier peak, the ensembles without the move never see the other one;
+    # with it the fraction of draws on the lighter peak matches its weight 0.3 within
+    # 5 binomial standard errors of the effective sample size (common practice).
+    config = _small(period_jump=weight, max_steps=3000, warmup_steps=100)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        run = run_ensembles(two_peaks, np.array([1.0, 0.0]), np.diag([PEAK_SD**2, 1.0]),
+                            config=config, seed=2, names=("log_period", "x"),
+                            period_bounds=(math.exp(-2.0), math.exp(2.0)))
+    draws = run.samples()
+    light = np.mean(draws[:, 0] < 0)
+    if not recovered:
+        assert light == 0.0
+        return
+    assert run.converged, run.diagnostics.reasons
+    ess = float(np.min(run.diagnostics.ess))
+    assert abs(light - 0.3) < 5 * math.sqrt(0.3 * 0.7 / ess), (light, ess)
+    assert np.var(draws[:, 1]) == pytest.approx(1.0, abs=5 * math.sqrt(2 / ess))
+
+
+def test_period_jump_option_is_validated():
+    with pytest.raises(ConfigError, match=r"period_jump.*>= 0"):
+        SamplerConfig(period_jump=-0.1)

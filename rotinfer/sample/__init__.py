@@ -10,7 +10,7 @@
 
 from .checkpoint import Checkpoint
 from .convergence import EnsembleDiagnostics, rank_normalised_split_rhat
-from .ensemble import EnsembleRun, run_ensembles
+from .ensemble import EnsembleRun, PeriodJumpMove, run_ensembles
 from .optimise import (
     Laplace,
     Mode,
@@ -29,6 +29,7 @@ __all__ = [
     "EnsembleRun",
     "Laplace",
     "Mode",
+    "PeriodJumpMove",
     "Posterior",
     "SampledMode",
     "SamplerConfig",

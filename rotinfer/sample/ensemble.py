@@ -8,7 +8,12 @@ cross between separated regions, the affine-invariant stretch move
 (``StretchMove``, Goodman & Weare 2010; off by default, it mixed slowest in our
 trials), and an independence proposal from the Laplace approximation of the
 mode (:class:`IndependenceMove`), which roughly halved the autocorrelation
-time of the rotation posterior in our trials.
+time of the rotation posterior in our trials. Optionally (``[sampler] period_jump``), a
+move that changes the period alone (:class:`PeriodJumpMove`): an independence proposal
+for ``log_period`` from a fixed one-dimensional density over the mode's period range, a
+component-wise Metropolis-Hastings update (Metropolis within Gibbs; e.g. Robert &
+Casella 2004, ch. 10) that lets walkers jump between the separated small peaks of a
+broad, rugged period posterior, which the ensemble moves cross only slowly.
 
 A discarded warm-up (``[sampler] warmup_steps``) comes first: after it each
 ensemble's independence proposal is refitted to the mean and covariance of the
@@ -29,7 +34,9 @@ References
 Foreman-Mackey, D., Hogg, D. W., Lang, D. & Goodman, J. 2013, PASP 125, 306 (emcee).
 Goodman, J. & Weare, J. 2010, CAMCoS 5, 65. ter Braak, C. J. F. 2006, Stat. Comput.
 16, 239. ter Braak, C. J. F. & Vrugt, J. A. 2008, Stat. Comput. 18, 435.
-Tierney, L. 1994, Annals of Statistics 22, 1701.
+Tierney, L. 1994, Annals of Statistics 22, 1701. Robert, C. P. & Casella, G. 2004,
+Monte Carlo Statistical Methods, 2nd ed. (Springer), ch. 10. Silverman, B. W. 1986,
+Density Estimation for Statistics and Data Analysis (Chapman & Hall), eq. 3.31.
 """
 
 from __future__ import annotations
@@ -50,7 +57,7 @@ from .convergence import EnsembleDiagnostics
 from .mcse import run_precision
 from .settings import SamplerConfig
 
-__all__ = ["EnsembleRun", "IndependenceMove", "run_ensembles"]
+__all__ = ["EnsembleRun", "IndependenceMove", "PeriodJumpMove", "run_ensembles"]
 
 
 @dataclass(frozen=True)
@@ -127,12 +134,108 @@ class IndependenceMove(emcee.moves.MHMove):
         return q, self._log_g(coords) - self._log_g(q)
 
 
-def _moves(weights, start, covariance, scale):
+class PeriodJumpMove(emcee.moves.MHMove):
+    """Independence proposal for one coordinate (the log period), the others kept.
+
+    Each walker proposes a new value of column ``column`` from the fixed density
+
+        g(x) = u / (hi - lo) 1[lo <= x <= hi] + (1 - u) mean_i Normal(x; c_i, h^2),
+
+    a mixture of the uniform density over the period range ``[lo, hi]`` and a Gaussian
+    kernel density estimate with centres ``c_i``, and every other coordinate unchanged;
+    it is accepted with the ratio p(q) g(x_k) / (p(x) g(q_k)). Because g depends on
+    neither the walker nor the other walkers, this is an exact component-wise
+    Metropolis-Hastings update (Robert & Casella 2004, ch. 10). The uniform part reaches
+    every period of the range, so the move can cross between separated period peaks;
+    the kernel part proposes where the period posterior was found to lie (the centres
+    are draws of the warm-up, frozen afterwards).
+
+    Parameters
+    ----------
+    column : int
+        Index of the coordinate (``log_period``).
+    bounds : (float, float)
+        ``lo, hi``: the range of that coordinate (ln days), finite.
+    centres : array_like
+        Kernel centres (ln days).
+    bandwidth : float
+        Kernel standard deviation ``h`` (ln days), positive.
+    uniform_fraction : float
+        ``u`` in [0, 1].
+
+    References
+    ----------
+    Robert, C. P. & Casella, G. 2004, Monte Carlo Statistical Methods, 2nd ed., ch. 10.
+    """
+
+    def __init__(self, column, bounds, centres, bandwidth, *, uniform_fraction=0.5):
+        self.column = int(column)
+        self.lo, self.hi = (float(b) for b in bounds)
+        if not (math.isfinite(self.lo) and math.isfinite(self.hi) and self.hi > self.lo):
+            raise ValueError(f"period jump: need finite bounds lo < hi, got {bounds}")
+        self.centres = np.atleast_1d(np.asarray(centres, dtype=float))
+        self.bandwidth = float(bandwidth)
+        if not self.bandwidth > 0 or self.centres.size == 0:
+            raise ValueError("period jump: need at least one centre and a positive bandwidth")
+        self.uniform_fraction = float(uniform_fraction)
+        if not 0 <= self.uniform_fraction <= 1:
+            raise ValueError(f"period jump: uniform_fraction must be in [0, 1], got "
+                             f"{uniform_fraction}")
+        super().__init__(self._propose)
+
+    def log_density(self, x):
+        """ln g(x) for an array of values ``x`` (ln days)."""
+        x = np.asarray(x, dtype=float)
+        z = (x[:, None] - self.centres[None, :]) / self.bandwidth
+        kde = np.exp(-0.5 * z * z).mean(axis=1) / (self.bandwidth * math.sqrt(2 * math.pi))
+        inside = (x >= self.lo) & (x <= self.hi)
+        uniform = np.where(inside, 1.0 / (self.hi - self.lo), 0.0)
+        with np.errstate(divide="ignore"):
+            return np.log(self.uniform_fraction * uniform + (1 - self.uniform_fraction) * kde)
+
+    def draw(self, n, random):
+        """``n`` draws from g (``random``: a numpy ``RandomState``, as emcee passes)."""
+        flat = random.uniform(self.lo, self.hi, n)
+        pick = random.randint(0, self.centres.size, n)
+        kernel = self.centres[pick] + self.bandwidth * random.standard_normal(n)
+        return np.where(random.uniform(0.0, 1.0, n) < self.uniform_fraction, flat, kernel)
+
+    def _propose(self, coords, random):
+        q = coords.copy()
+        q[:, self.column] = self.draw(coords.shape[0], random)
+        factor = self.log_density(coords[:, self.column]) - self.log_density(q[:, self.column])
+        return q, factor
+
+    @classmethod
+    def from_draws(cls, column, bounds, draws, *, max_centres=400, uniform_fraction=0.5):
+        """The move with kernel centres at (evenly thinned) ``draws`` of the coordinate.
+
+        The bandwidth is Silverman's rule, 0.9 min(sd, IQR / 1.34) n^(-1/5) (Silverman
+        1986, eq. 3.31), with n the number of centres, and at least 1e-6 of the range.
+        """
+        draws = np.asarray(draws, dtype=float).ravel()
+        draws = draws[np.isfinite(draws)]
+        if draws.size > max_centres:
+            draws = draws[np.linspace(0, draws.size - 1, max_centres).round().astype(int)]
+        lo, hi = bounds
+        floor = 1e-6 * (hi - lo)
+        if draws.size < 2:
+            return cls(column, bounds, draws if draws.size else [0.5 * (lo + hi)],
+                       max(0.1 * (hi - lo), floor), uniform_fraction=uniform_fraction)
+        q75, q25 = np.percentile(draws, [75, 25])
+        spread = min(np.std(draws), (q75 - q25) / 1.34) or np.std(draws)
+        h = 0.9 * spread * draws.size ** -0.2
+        return cls(column, bounds, draws, max(h, floor), uniform_fraction=uniform_fraction)
+
+
+def _moves(weights, start, covariance, scale, jump=None):
     de, snooker, stretch, independence = weights
     moves = [(emcee.moves.DEMove(), de), (emcee.moves.DESnookerMove(), snooker),
              (emcee.moves.StretchMove(), stretch)]
     if independence > 0:
         moves.append((IndependenceMove(start, covariance, scale=scale), independence))
+    if jump is not None:
+        moves.append(jump)
     return [(m, w) for m, w in moves if w > 0]
 
 
@@ -272,6 +375,7 @@ def run_ensembles(
     group: str = "ensembles",
     label: str = "target",
     progress: Callable[[int], None] | None = None,
+    period_bounds: tuple[float, float] | None = None,
 ) -> EnsembleRun:
     """Run ``config.n_ensembles`` independent ensembles until converged or capped.
 
@@ -303,6 +407,11 @@ def run_ensembles(
         How messages name this target.
     progress : callable, optional
         Called with the number of steps just completed by every ensemble.
+    period_bounds : (float, float), optional
+        The period range (days) the target allows; with ``config.period_jump > 0`` and
+        a ``log_period`` parameter, the :class:`PeriodJumpMove` proposes over it (during
+        the warm-up with its kernel at the start, afterwards at each ensemble's own
+        warm-up draws, frozen).
 
     Returns
     -------
@@ -313,7 +422,22 @@ def run_ensembles(
     ndim = start.size
     names = tuple(names) if names is not None else tuple(f"x{i}" for i in range(ndim))
     n_walkers = max(config.n_walkers, 2 * ndim + 2)
-    laplace_moves = _moves(config.move_weights, start, covariance, config.independence_scale)
+    column = names.index("log_period") if "log_period" in names else None
+    jumping = config.period_jump > 0 and column is not None and period_bounds is not None
+    log_bounds = (math.log(period_bounds[0]), math.log(period_bounds[1])) if jumping else None
+
+    def jump(draws):
+        if not jumping:
+            return None
+        return (PeriodJumpMove.from_draws(column, log_bounds, draws), config.period_jump)
+
+    first_jump = None
+    if jumping:
+        sd = math.sqrt(max(float(np.asarray(covariance)[column, column]), 1e-12))
+        first_jump = (PeriodJumpMove(column, log_bounds, [start[column]],
+                                     config.independence_scale * sd), config.period_jump)
+    laplace_moves = _moves(config.move_weights, start, covariance, config.independence_scale,
+                           first_jump)
     n_ens = config.n_ensembles
 
     def fresh(e):
@@ -339,7 +463,8 @@ def run_ensembles(
             if progress is not None:
                 progress(steps)
         moves = [
-            _moves(config.move_weights, *_adapted(c, start, covariance), config.adapted_scale)
+            _moves(config.move_weights, *_adapted(c, start, covariance), config.adapted_scale,
+                   jump(c[c.shape[0] // 2:, :, column]) if jumping else None)
             for c in warm.chains
         ]
 
@@ -359,7 +484,6 @@ def run_ensembles(
         tau_rtol=config.tau_rtol, rhat_max=config.rhat_max, burn_in_tau=config.burn_in_tau,
         stuck_ratio=config.stuck_ratio, tau_noise_z=config.tau_noise_z,
     )
-    column = names.index("log_period") if "log_period" in names else None
     diagnostics = None
     while True:
         n = run.n_steps

@@ -44,7 +44,7 @@ from ._threads import single_blas_thread
 from .checkpoint import Checkpoint
 from .ensemble import EnsembleRun, run_ensembles
 from .optimise import Mode, choose_periodic_backgrounds, find_modes, fit_aperiodic
-from .settings import SamplerConfig
+from .settings import EARLIER_SAMPLER_VALUES, SamplerConfig
 
 __all__ = ["Posterior", "SampledMode", "fit", "importance_log_evidence", "optimise_star"]
 
@@ -189,7 +189,8 @@ def _fingerprint(model: RotationModel, periods, config: SamplerConfig, seed,
     h = hashlib.sha256()
     for arr in (model.time, model.flux, model.flux_err):
         h.update(np.ascontiguousarray(arr).tobytes())
-    sampler = {k: v for k, v in dataclass_to_dict(config).items() if k not in leave_out}
+    sampler = {k: v for k, v in dataclass_to_dict(config).items() if k not in leave_out
+               and not (k in EARLIER_SAMPLER_VALUES and EARLIER_SAMPLER_VALUES[k] == v)}
     model_cfg = {k: v for k, v in dataclass_to_dict(model.config).items()
                  if k not in _MODEL_NOT_IN_FINGERPRINT
                  and not (k in EARLIER_MODEL_VALUES and EARLIER_MODEL_VALUES[k] == v)}
@@ -345,6 +346,7 @@ def fit(
             target, mode.theta, mode.laplace.covariance, config=config, seed=child(1, k),
             names=model.names, checkpoint=ckpt, group=f"mode{k}",
             label=f"mode at {mode.period:.4g} d", progress=progress,
+            period_bounds=basin if len(competitive) > 1 else model.period_range,
         )
         runs.append((mode, basin, target, run))
 

@@ -2,11 +2,17 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 from ..errors import ConfigError
 
-__all__ = ["SamplerConfig"]
+__all__ = ["EARLIER_SAMPLER_VALUES", "SamplerConfig"]
+
+#: Sampler options added later, with the value that samples as before they existed: at
+#: that value an option stays out of checkpoint fingerprints and benchmark keys, so
+#: earlier chains still resume and earlier benchmark tables still carry.
+EARLIER_SAMPLER_VALUES = {"period_jump": 0.0}
 
 
 @dataclass(frozen=True)
@@ -75,6 +81,12 @@ class SamplerConfig:
         shaped like the posterior rather than like its Laplace approximation.
     adapted_scale : float
         The refitted proposal's scale relative to the warm-up covariance.
+    period_jump : float
+        0 (default) = off. Otherwise the weight, beside ``move_weights``, of a move that
+        changes the period alone (:class:`~rotinfer.sample.ensemble.PeriodJumpMove`):
+        half of its proposals uniform in ln P over the mode's period range, half near
+        the warm-up's periods; it lets walkers cross between the small separated peaks
+        of a broad period posterior.
     importance_draws : int
         Draws for the importance-sampling evidence of each sampled mode (used to
         weight modes when more than one is sampled).
@@ -113,6 +125,7 @@ class SamplerConfig:
     warmup_steps: int = 300
     adapted_scale: float = 1.2
     importance_draws: int = 1000
+    period_jump: float = 0.0
     period_precision: float = 0.0
 
     def __post_init__(self):
@@ -136,6 +149,9 @@ class SamplerConfig:
             raise ConfigError(f"[sampler] period_window: must exceed 1, got {self.period_window}")
         if not self.tau_noise_z >= 0:
             raise ConfigError(f"[sampler] tau_noise_z: must be >= 0, got {self.tau_noise_z}")
+        if not (self.period_jump >= 0 and math.isfinite(self.period_jump)):
+            raise ConfigError(f"[sampler] period_jump: must be a finite weight >= 0 (0 = off), "
+                              f"got {self.period_jump}")
         if not 0 <= self.period_precision < 1:
             raise ConfigError(f"[sampler] period_precision: must be in [0, 1) (0 = off), got "
                               f"{self.period_precision}")
