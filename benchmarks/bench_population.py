@@ -29,7 +29,10 @@ and adds its own, so the committed table grows towards the requested population 
 when each session's work folder is lost. "The same configuration" means the same file
 and the same resolved options (``rotinfer.config.config_hash`` of every stage's
 settings, defaults included, but not the false-alarm statement of ``[detection]``), so a
-changed default or a new model option starts the table afresh.
+changed default or a new model option starts the table afresh. One exception: a table
+made with the per-night offset term off, carried into a run where it is "auto", keeps
+its stars whose prepared light curves are not nightly (the term never applies to them,
+so their fits are the same) and refits the nightly ones.
 
 Usage::
 
@@ -172,14 +175,16 @@ REPORT_ONLY = (("periodogram", "window_threshold"), ("periodogram", "window_max_
 NIGHT_OPTIONS = ("night_offsets", "night_offset_ppt", "night_gap_hours")
 
 
-def options_hash(cfg) -> str:
+def options_hash(cfg, *, not_nightly: bool = False) -> str:
     """Hash of the resolved options of a ``RunConfig`` that shape the fits and the calls.
 
     Not the wording of the false-alarm statement; not the options of the sampling check,
     which only adds a flag to the summary (dropped, not blanked, so that stars fitted
     before the check existed still match); not the options of a model term that is
     switched off, nor an option at the value that gives the model as it was before the
-    option existed (the fit is then the same as before).
+    option existed (the fit is then the same as before). With ``not_nightly``, the
+    options as they fit a star whose sampling is not nightly: a night term on "auto" is
+    then off.
     """
     import hashlib
     import json
@@ -188,6 +193,8 @@ def options_hash(cfg) -> str:
     from rotinfer.model import EARLIER_MODEL_VALUES
     from rotinfer.sample.settings import EARLIER_SAMPLER_VALUES
 
+    if not_nightly and cfg.model.night_offsets == "auto":
+        cfg = dataclasses.replace(cfg, model=dataclasses.replace(cfg.model, night_offsets="off"))
     detection = dataclasses.replace(cfg.detection, false_alarm_rate=None,
                                     false_alarm_upper_95=None, calibration="")
     options = dataclass_to_dict(dataclasses.replace(cfg, detection=detection))
@@ -222,16 +229,59 @@ def _run_key(seed: int, per_class: int, config: str) -> dict:
             "resolved_config": resolved}
 
 
-def load_carried(path: Path, key: dict) -> Table | None:
-    """Finished stars of earlier runs with the same key, or None (a mismatch is reported)."""
+def load_carried(path: Path, key: dict, *, config: str | None = None,
+                 work: Path | None = None) -> Table | None:
+    """Finished stars of earlier runs with the same key, or None (a mismatch is reported).
+
+    With ``config`` and ``work``: a table whose key differs only in that it was made with
+    the night term off, where this run has it on "auto", gives its stars that are not
+    nightly (:func:`nightly_stars`), whose fits "auto" leaves as they were.
+    """
     if not path.exists():
         return None
     t = Table.read(path, format="ascii.ecsv")
     found = {k: t.meta.get(k) for k in key}
-    if found != key:
-        print(f"{path}: made with {found}, this run is {key}; not carried", file=sys.stderr)
-        return None
-    return t
+    if found == key:
+        return t
+    if config is not None and work is not None and _only_night_term_differs(found, key,
+                                                                             config):
+        nightly = nightly_stars(work, config, t["name"])
+        keep = np.array([name not in nightly for name in t["name"]], dtype=bool)
+        print(f"{path}: made with the night term off; carrying its {int(keep.sum())} stars "
+              f"whose sampling is not nightly (\"auto\" fits them as before) and refitting "
+              f"its {int((~keep).sum())} nightly ones", file=sys.stderr)
+        t = t[keep]
+        t.meta.update(key)
+        return t
+    print(f"{path}: made with {found}, this run is {key}; not carried", file=sys.stderr)
+    return None
+
+
+def _only_night_term_differs(found: dict, key: dict, config: str) -> bool:
+    from rotinfer.pipeline import load_run_config
+
+    cfg = load_run_config(config)
+    same_rest = all(found[k] == key[k] for k in key if k != "resolved_config")
+    return (same_rest and cfg.model.night_offsets == "auto"
+            and found.get("resolved_config") == options_hash(cfg, not_nightly=True))
+
+
+def nightly_stars(work: Path, config: str, names) -> set[str]:
+    """Names among ``names`` whose light curves, prepared as ``config`` prepares them, are
+    nightly (:func:`rotinfer.model.is_nightly`, the test "auto" applies)."""
+    from rotinfer.io import read_stars
+    from rotinfer.model import is_nightly
+    from rotinfer.pipeline import load_run_config
+    from rotinfer.prepare import prepare
+
+    cfg = load_run_config(config)
+    out = set()
+    for name in names:
+        number, _, cls = str(name).partition("-")
+        lc = read_stars([str(work / "lc" / cls / f"kestrel-{number}.fits")])[0]
+        if is_nightly(prepare(lc, cfg.prepare).lc.time, cfg.model.night_gap_hours):
+            out.add(str(name))
+    return out
 
 
 def _finished(work: Path, commit: str) -> Table | None:
@@ -446,7 +496,6 @@ def main(argv=None) -> int:
     out = Path(args.out)
     key = _run_key(args.seed, args.per_class, args.config)
     carry = Path(args.carry)
-    carried = load_carried(carry, key)
     commit = args.commit or _git_commit()
 
     from rotinfer import __version__
@@ -455,6 +504,7 @@ def main(argv=None) -> int:
 
     work.mkdir(parents=True, exist_ok=True)
     _simulate(work, args.per_class, args.seed)
+    carried = load_carried(carry, key, config=args.config, work=work)
     if not args.summarise_only:
         skip = frozenset(carried["name"]) if carried is not None else frozenset()
         manifest = _manifest(work, skip)

@@ -17,7 +17,7 @@ The light curve (relative flux, normalised to median 1 per segment by
   whose noise has two timescales: with one, such a posterior can have two modes
   (the oscillator on the fast noise or on the slow) that separate ensembles
   settle on differently (R-hat far above 1; BENCHMARKS.md, section 1b).
-* night offsets (optional, ``night_offsets``; off by default) — ground-based
+* night offsets (``night_offsets``; "auto" by default: on for nightly sampling) — ground-based
   photometry has a zero-point offset per night (comparison stars, airmass, clouds)
   that the rotation term would otherwise have to explain, so that posteriors lock on
   the day. Each night's offset is Normal(0, sigma_night^2), integrated out
@@ -219,7 +219,8 @@ class ModelConfig:
         A zero-point offset per night (ground-based photometry), integrated out
         analytically: a covariance term sigma_night^2 within each night and zero
         between nights, sigma_night sampled (:func:`night_index`). "auto" turns it on
-        where the sampling is nightly (:func:`is_nightly`); "off" (default) never.
+        where the sampling is nightly (:func:`is_nightly`; default); "on" always; "off"
+        never.
     night_offset_ppt : [lo, hi]
         95 % prior range of sigma_night, ppt.
     night_gap_hours : float
@@ -241,7 +242,7 @@ class ModelConfig:
     periodic_backgrounds: int | str = "auto"
     mean: tuple[float, ...] = (1.0, 0.05)
     marginalise_mean: bool = True
-    night_offsets: str = "off"
+    night_offsets: str = "auto"
     night_offset_ppt: tuple[float, ...] = (0.01, 30.0)
     night_gap_hours: float = 6.0
 

@@ -105,6 +105,40 @@ def test_injection_recovery_slice(tmp_path):
             == [r for r in text.splitlines() if r.startswith("| easy")])
     # ... but not into a run with another seed.
     assert bench.load_carried(stars, bench._run_key(2, 1, str(cfg))) is None
+    # A table made when the night term was off, carried into a run where it is "auto":
+    # it keeps the stars whose sampling is not nightly ("auto" fits them as "off" did) and
+    # drops the nightly ones. Under the default preparation (TINY's 400-point bins leave
+    # about one point per night, not nightly) those are the simulator's ground-based
+    # stars (truth table's "pattern").
+    import dataclasses
+
+    from rotinfer.pipeline import load_run_config
+    from rotinfer.simulate.output import read_truth_table
+
+    nightly_cfg = tmp_path / "nightly.toml"
+    nightly_cfg.write_text(TINY.replace("max_points = 400\n", ""))
+    run_cfg = load_run_config(str(nightly_cfg))
+    assert run_cfg.model.night_offsets == "auto"
+    off = dataclasses.replace(run_cfg, model=dataclasses.replace(run_cfg.model,
+                                                                 night_offsets="off"))
+    key = bench._run_key(1, 1, str(nightly_cfg))
+    assert (bench.options_hash(off) == bench.options_hash(run_cfg, not_nightly=True)
+            != key["resolved_config"])
+    old = bench.Table.read(stars, format="ascii.ecsv")
+    old.meta.update(key)
+    old.meta["resolved_config"] = bench.options_hash(off)
+    old.write(tmp_path / "off_stars.ecsv", format="ascii.ecsv")
+    kept = bench.load_carried(tmp_path / "off_stars.ecsv", key, config=str(nightly_cfg),
+                              work=tmp_path / "work")
+    ground = set()
+    for cls in bench.CLASSES:
+        t = read_truth_table(tmp_path / "work" / "lc" / cls / "truth.ecsv")
+        ground |= {bench._identifier(n, cls) for n, pattern in zip(t["name"], t["pattern"])
+                   if pattern == "ground"}
+    assert "00001-hard" in ground
+    assert set(kept["name"]) == set(old["name"]) - ground
+    assert kept.meta["resolved_config"] == key["resolved_config"]
+    assert bench.load_carried(tmp_path / "off_stars.ecsv", key) is None  # not without work
 
     # A refit of a population star with nothing changed (bench_refit.py, the workbench for
     # candidate defaults) is the population's fit, number for number: same light curve,

@@ -165,7 +165,9 @@ def test_from_prepared_turns_the_term_on_for_nightly_data_only(rng):
         prepared = prepare(star.lc)
         model = RotationModel.from_prepared(prepared, config=auto)
         assert (model.night is not None) is nightly
-        assert RotationModel.from_prepared(prepared).night is None  # default "off"
+        assert (RotationModel.from_prepared(prepared).night is not None) is nightly  # "auto"
+        off = RotationModel.from_prepared(prepared, config=ModelConfig(night_offsets="off"))
+        assert off.night is None
         forced = RotationModel.from_prepared(prepared, config=ModelConfig(night_offsets="on"))
         assert forced.night is not None
 
@@ -207,3 +209,23 @@ def test_night_offset_scatter_is_recovered_from_data_drawn_with_it(rng):
     res = optimize.minimize(lambda x: -model(x), truth, method="L-BFGS-B")
     assert model(res.x) >= model(truth)
     assert model.unpack(res.x)["night_offset"] == pytest.approx(2e-3, rel=0.2)
+
+
+def test_checkpoint_fingerprint_holds_the_night_term_as_resolved(rng):
+    # "auto" fits exactly as "off" on data that are not nightly and as "on" on data that
+    # are, so the checkpoint's fingerprint says which (a space light curve's chains made
+    # when "off" was the default still resume).
+    from rotinfer.prepare import prepare
+    from rotinfer.sample import SamplerConfig
+    from rotinfer.sample import posterior as post
+    from rotinfer.simulate import draw_population, simulate_star, star_seed
+
+    for population, same_as in (("hard", "on"), ("easy", "off")):
+        params, pattern, name = draw_population(None, 1, seed=3, population=population)[0]
+        star = simulate_star(params, pattern, seed=star_seed(3, 0), name=name)
+        prepared = prepare(star.lc)
+        prints = {mode: post._fingerprint(
+            RotationModel.from_prepared(prepared, config=ModelConfig(night_offsets=mode)),
+            [4.0], SamplerConfig(), 1) for mode in ("off", "auto", "on")}
+        assert prints["auto"] == prints[same_as]
+        assert prints["off"] != prints["on"]

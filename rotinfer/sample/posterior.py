@@ -194,6 +194,10 @@ def _fingerprint(model: RotationModel, periods, config: SamplerConfig, seed,
     model_cfg = {k: v for k, v in dataclass_to_dict(model.config).items()
                  if k not in _MODEL_NOT_IN_FINGERPRINT
                  and not (k in EARLIER_MODEL_VALUES and EARLIER_MODEL_VALUES[k] == v)}
+    # The night term as resolved for this light curve: "auto" fits exactly as "on" where
+    # the sampling is nightly and as "off" elsewhere (so, e.g., a space light curve's
+    # checkpoint made when "off" was the default still resumes).
+    model_cfg["night_offsets"] = "on" if model.night is not None else "off"
     meta = {
         "model": model_cfg, "period_range": list(model.period_range),
         "sampler": sampler, "seed": seed, "periods": [float(p) for p in periods],
