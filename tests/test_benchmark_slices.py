@@ -133,7 +133,8 @@ def test_injection_recovery_slice(tmp_path):
     ground = set()
     for cls in bench.CLASSES:
         t = read_truth_table(tmp_path / "work" / "lc" / cls / "truth.ecsv")
-        ground |= {bench._identifier(n, cls) for n, pattern in zip(t["name"], t["pattern"])
+        ground |= {bench._identifier(n, cls)
+                   for n, pattern in zip(t["name"], t["pattern"], strict=True)
                    if pattern == "ground"}
     assert "00001-hard" in ground
     assert set(kept["name"]) == set(old["name"]) - ground
