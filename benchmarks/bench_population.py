@@ -42,7 +42,7 @@ Usage::
 
 ``--compare`` sets the stars of this run beside the same stars (same names, so the same
 simulated light curves) of an earlier run's star table, class by class: within 10 %,
-detected, converged, and the per-star CPU ratio (written to
+detected, converged, and the per-star CPU ratio (written to ``--compare-out``, default
 ``results/population_compare.md``).
 """
 
@@ -490,7 +490,9 @@ def main(argv=None) -> int:
                     help="commit recorded for this run's stars (default: git rev-parse)")
     ap.add_argument("--compare", default=None, metavar="STARS.ecsv",
                     help="an earlier run's star table to set this run's stars beside "
-                         "(writes results/population_compare.md)")
+                         "(writes --compare-out)")
+    ap.add_argument("--compare-out", default=str(HERE / "results" / "population_compare.md"),
+                    help="where --compare writes its table")
     args = ap.parse_args(argv)
     work = Path(args.work)
     out = Path(args.out)
@@ -537,8 +539,7 @@ def main(argv=None) -> int:
                     carried=carried, commit=commit, stars_out=carry, key=key))
     if args.compare:
         now = Table.read(carry, format="ascii.ecsv")
-        print(compare(work, Path(args.compare), now, out.with_name("population_compare.md"),
-                      header))
+        print(compare(work, Path(args.compare), now, Path(args.compare_out), header))
     return 0
 
 
