@@ -34,7 +34,7 @@ from pathlib import Path
 
 import numpy as np
 from astropy.table import Table
-from bench_population import _within
+from bench_population import _within, light_curve_path
 
 HERE = Path(__file__).resolve().parent
 SEED = 20261203
@@ -99,9 +99,7 @@ def _fit_stars(names, work: Path, config: Path):
     for name in names:
         if name in have:
             continue
-        number, cls = name.split("-")
-        path = work / "lc" / cls / f"kestrel-{number}.fits"
-        lc = read_stars([str(path)])[0]
+        lc = read_stars([str(light_curve_path(work, name))])[0]
         out = work / "night_offsets" / name
         start = time.process_time()
         summary = analyse_star(lc, config=cfg, seed=star_seed(7, name), out_dir=out,

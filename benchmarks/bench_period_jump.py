@@ -39,25 +39,19 @@ HERE = Path(__file__).resolve().parent
 
 def mode_target(folder: Path, work: Path, k: int):
     """(target, names, warm-up chains, sampling chains, basin, config) of mode ``k``."""
-    import dataclasses
-
     import h5py
+    from bench_population import light_curve_path
 
     from rotinfer.io import read_stars
-    from rotinfer.model import RotationModel
     from rotinfer.periodogram import scan
-    from rotinfer.pipeline import load_run_config
+    from rotinfer.pipeline import load_run_config, rotation_model
     from rotinfer.prepare import prepare
 
     summary = json.loads((folder / "summary.json").read_text())
     cfg = load_run_config(overrides=summary["config"])
-    number, _, cls = folder.name.partition("-")
-    lc = read_stars([str(work / "lc" / cls / f"kestrel-{number}.fits")])[0]
+    lc = read_stars([str(light_curve_path(work, folder.name))])[0]
     prepared = prepare(lc, cfg.prepare)
-    model = RotationModel.from_prepared(prepared, config=cfg.model)
-    if cfg.model.period_range is None:
-        sc = scan(prepared, config=cfg.periodogram)
-        model = dataclasses.replace(model, period_range=(sc.min_period, sc.max_period))
+    model = rotation_model(prepared, scan(prepared, config=cfg.periodogram), cfg.model)
     with h5py.File(folder / "chains.h5", "r") as f:
         stored = json.loads(f["json"]["modes"].attrs["value"])
         warm = [f[f"mode{k}/warmup{e}/chain"][...] for e in range(cfg.sampler.n_ensembles)]

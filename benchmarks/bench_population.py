@@ -100,6 +100,12 @@ def _identifier(name: str, cls: str) -> str:
     return f"{name.rsplit('-', 1)[-1]}-{cls}"
 
 
+def light_curve_path(work: Path, name: str) -> Path:
+    """'00003-hard' -> WORK/lc/hard/kestrel-00003.fits (the inverse of :func:`_identifier`)."""
+    number, _, cls = str(name).partition("-")
+    return work / "lc" / cls / f"kestrel-{number}.fits"
+
+
 def _manifest(work: Path, skip=frozenset()) -> Path:
     rows = []
     for cls in CLASSES:
@@ -243,9 +249,13 @@ def load_carried(path: Path, key: dict, *, config: str | None = None,
     found = {k: t.meta.get(k) for k in key}
     if found == key:
         return t
-    if config is not None and work is not None and _only_night_term_differs(found, key,
-                                                                             config):
-        nightly = nightly_stars(work, config, t["name"])
+    cfg = None
+    if config is not None and work is not None:
+        from rotinfer.pipeline import load_run_config
+
+        cfg = load_run_config(config)
+    if cfg is not None and _only_night_term_differs(found, key, cfg):
+        nightly = nightly_stars(work, cfg, t["name"])
         keep = np.array([name not in nightly for name in t["name"]], dtype=bool)
         print(f"{path}: made with the night term off; carrying its {int(keep.sum())} stars "
               f"whose sampling is not nightly (\"auto\" fits them as before) and refitting "
@@ -257,28 +267,23 @@ def load_carried(path: Path, key: dict, *, config: str | None = None,
     return None
 
 
-def _only_night_term_differs(found: dict, key: dict, config: str) -> bool:
-    from rotinfer.pipeline import load_run_config
-
-    cfg = load_run_config(config)
+def _only_night_term_differs(found: dict, key: dict, cfg) -> bool:
     same_rest = all(found[k] == key[k] for k in key if k != "resolved_config")
     return (same_rest and cfg.model.night_offsets == "auto"
             and found.get("resolved_config") == options_hash(cfg, not_nightly=True))
 
 
-def nightly_stars(work: Path, config: str, names) -> set[str]:
-    """Names among ``names`` whose light curves, prepared as ``config`` prepares them, are
-    nightly (:func:`rotinfer.model.is_nightly`, the test "auto" applies)."""
+def nightly_stars(work: Path, cfg, names) -> set[str]:
+    """Names among ``names`` whose light curves, prepared as the ``RunConfig`` ``cfg``
+    prepares them, are nightly (:func:`rotinfer.model.is_nightly`, the test "auto"
+    applies)."""
     from rotinfer.io import read_stars
     from rotinfer.model import is_nightly
-    from rotinfer.pipeline import load_run_config
     from rotinfer.prepare import prepare
 
-    cfg = load_run_config(config)
     out = set()
     for name in names:
-        number, _, cls = str(name).partition("-")
-        lc = read_stars([str(work / "lc" / cls / f"kestrel-{number}.fits")])[0]
+        lc = read_stars([str(light_curve_path(work, name))])[0]
         if is_nightly(prepare(lc, cfg.prepare).lc.time, cfg.model.night_gap_hours):
             out.add(str(name))
     return out

@@ -43,7 +43,7 @@ from pathlib import Path
 
 import numpy as np
 from astropy.table import Table
-from bench_population import _harmonic, _truth, _within, options_hash
+from bench_population import _harmonic, _truth, _within, light_curve_path, options_hash
 
 HERE = Path(__file__).resolve().parent
 RESULTS = HERE / "results"
@@ -99,8 +99,7 @@ def _fit_one(name: str, work: Path, cfg, out_dir: Path, seed: int,
     from rotinfer.pipeline import analyse_star
     from rotinfer.survey.tasks import star_seed
 
-    number, cls = name.split("-")
-    lc = read_stars([str(work / "lc" / cls / f"kestrel-{number}.fits")])[0]
+    lc = read_stars([str(light_curve_path(work, name))])[0]
     chains = out_dir / name / "chains.h5"
     source = continue_from / name / "chains.h5" if continue_from is not None else None
     if source is not None and source.exists() and not chains.exists():

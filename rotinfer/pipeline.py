@@ -215,6 +215,21 @@ def derived_block(period, weight, stellar, *, seed: int, relations=None) -> dict
     return block
 
 
+def rotation_model(prepared, scan_result, config) -> RotationModel:
+    """The rotation model of a prepared light curve, as :func:`analyse_star` fits it.
+
+    Its period prior spans the periodogram scan's range unless ``config.period_range``
+    (a :class:`~rotinfer.model.ModelConfig`) sets one: the scan raises the shortest
+    period to the cadence limit, and the two are kept consistent.
+    """
+    model = RotationModel.from_prepared(prepared, config=config)
+    if config.period_range is None:
+        model = dataclasses.replace(
+            model, period_range=(scan_result.min_period, scan_result.max_period)
+        )
+    return model
+
+
 def analyse_star(
     lc: LightCurve,
     *,
@@ -270,12 +285,7 @@ def analyse_star(
 
     prepared = prepare(lc, config.prepare)
     scan_result = scan(prepared, config=config.periodogram)
-    model = RotationModel.from_prepared(prepared, config=config.model)
-    if config.model.period_range is None:
-        # the scan raises the shortest period to the cadence limit; keep the two consistent
-        model = dataclasses.replace(
-            model, period_range=(scan_result.min_period, scan_result.max_period)
-        )
+    model = rotation_model(prepared, scan_result, config.model)
 
     bar = None
     if progress:

@@ -426,18 +426,22 @@ def run_ensembles(
     jumping = config.period_jump > 0 and column is not None and period_bounds is not None
     log_bounds = (math.log(period_bounds[0]), math.log(period_bounds[1])) if jumping else None
 
-    def jump(draws):
+    def jump(points, *, laplace=False):
+        """The period-only move and its weight (None when off): before the warm-up one
+        kernel at ``points`` (the start) as wide as the Laplace proposal, afterwards
+        kernels at the periods of ``points`` (warm-up draws)."""
         if not jumping:
             return None
-        return (PeriodJumpMove.from_draws(column, log_bounds, draws), config.period_jump)
+        centres = np.atleast_1d(np.asarray(points)[..., column]).ravel()
+        if laplace:
+            sd = math.sqrt(max(float(np.asarray(covariance)[column, column]), 1e-12))
+            move = PeriodJumpMove(column, log_bounds, centres, config.independence_scale * sd)
+        else:
+            move = PeriodJumpMove.from_draws(column, log_bounds, centres)
+        return move, config.period_jump
 
-    first_jump = None
-    if jumping:
-        sd = math.sqrt(max(float(np.asarray(covariance)[column, column]), 1e-12))
-        first_jump = (PeriodJumpMove(column, log_bounds, [start[column]],
-                                     config.independence_scale * sd), config.period_jump)
     laplace_moves = _moves(config.move_weights, start, covariance, config.independence_scale,
-                           first_jump)
+                           jump(start, laplace=True))
     n_ens = config.n_ensembles
 
     def fresh(e):
@@ -464,7 +468,7 @@ def run_ensembles(
                 progress(steps)
         moves = [
             _moves(config.move_weights, *_adapted(c, start, covariance), config.adapted_scale,
-                   jump(c[c.shape[0] // 2:, :, column]) if jumping else None)
+                   jump(c[c.shape[0] // 2:]))
             for c in warm.chains
         ]
 
